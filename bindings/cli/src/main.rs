@@ -1,0 +1,2 @@
+//! The genloom command.
+fn main() {}

@@ -1,0 +1,409 @@
+//! From float outputs to 8-bit pictures: one rule, then PNG files, contact sheets and GIFs.
+//!
+//! # The rule
+//! For a model range `[lo, hi]`, a value `x` becomes
+//! `floor(clamp((x - lo) / (hi - lo), 0, 1) * 255 + 0.5)`: map to [0, 1], clamp, scale, and
+//! round half up. NaN becomes 0 and is counted in [`PixelStats::nan`]; values outside the range
+//! are clamped and counted. Gray output is replicated into RGB; RGB becomes gray by the
+//! ITU-R BT.601 luma weights (0.299, 0.587, 0.114) applied to the mapped values; a missing alpha
+//! channel is opaque (255).
+
+use crate::error::{Error, Result};
+use crate::generate::Images;
+use crate::signature::ValueRange;
+use image::ImageEncoder;
+use std::path::Path;
+
+/// An 8-bit pixel format.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum PixelFormat {
+    /// One byte per pixel.
+    Gray8,
+    /// Three bytes per pixel: red, green, blue.
+    Rgb8,
+    /// Four bytes per pixel: red, green, blue, alpha.
+    Rgba8,
+}
+
+impl PixelFormat {
+    /// Bytes per pixel.
+    pub fn bytes_per_pixel(self) -> usize {
+        match self {
+            PixelFormat::Gray8 => 1,
+            PixelFormat::Rgb8 => 3,
+            PixelFormat::Rgba8 => 4,
+        }
+    }
+
+    /// The format that keeps every channel of an output with `channels` channels.
+    pub fn natural(channels: usize) -> PixelFormat {
+        match channels {
+            1 => PixelFormat::Gray8,
+            4 => PixelFormat::Rgba8,
+            _ => PixelFormat::Rgb8,
+        }
+    }
+
+    fn color_type(self) -> image::ExtendedColorType {
+        match self {
+            PixelFormat::Gray8 => image::ExtendedColorType::L8,
+            PixelFormat::Rgb8 => image::ExtendedColorType::Rgb8,
+            PixelFormat::Rgba8 => image::ExtendedColorType::Rgba8,
+        }
+    }
+}
+
+/// An 8-bit picture, rows top to bottom, interleaved channels.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Pixels {
+    /// Width in pixels.
+    pub width: usize,
+    /// Height in pixels.
+    pub height: usize,
+    /// Pixel format.
+    pub format: PixelFormat,
+    /// `width * height * bytes_per_pixel` bytes.
+    pub data: Vec<u8>,
+}
+
+/// What the conversion had to correct.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, serde::Serialize)]
+pub struct PixelStats {
+    /// NaN values (written as 0).
+    pub nan: usize,
+    /// Values below the range's low end (clamped).
+    pub below: usize,
+    /// Values above the range's high end (clamped).
+    pub above: usize,
+}
+
+impl PixelStats {
+    fn add(&mut self, o: PixelStats) {
+        self.nan += o.nan;
+        self.below += o.below;
+        self.above += o.above;
+    }
+}
+
+/// Maps one value to [0, 1] by the rule (NaN to 0), counting corrections.
+fn unit(x: f32, range: ValueRange, stats: &mut PixelStats) -> f32 {
+    if x.is_nan() {
+        stats.nan += 1;
+        return 0.0;
+    }
+    let u = (x - range.lo) / (range.hi - range.lo);
+    if u < 0.0 {
+        stats.below += 1;
+        0.0
+    } else if u > 1.0 {
+        stats.above += 1;
+        1.0
+    } else {
+        u
+    }
+}
+
+/// Scales a value in [0, 1] to a byte, rounding half up.
+fn byte(u: f32) -> u8 {
+    (u * 255.0 + 0.5).floor().clamp(0.0, 255.0) as u8
+}
+
+/// Converts one float value in `range` to a byte by the module's rule.
+pub fn to_byte(x: f32, range: ValueRange) -> u8 {
+    byte(unit(x, range, &mut PixelStats::default()))
+}
+
+/// Image `i` of `images` as 8-bit pixels.
+///
+/// # Errors
+/// [`Error::InvalidOption`] when `i` is out of range.
+pub fn to_pixels(images: &Images, i: usize, format: PixelFormat) -> Result<(Pixels, PixelStats)> {
+    if i >= images.count {
+        return Err(Error::invalid("image index", i, format!("below the image count {}", images.count)));
+    }
+    let (w, h, c) = (images.width, images.height, images.channels);
+    let mut stats = PixelStats::default();
+    let mut data = Vec::with_capacity(w * h * format.bytes_per_pixel());
+    let range = images.range;
+    for y in 0..h {
+        for x in 0..w {
+            let mut v = [0f32; 4];
+            for (ch, slot) in v.iter_mut().enumerate().take(c) {
+                *slot = unit(images.at(i, ch, y, x), range, &mut stats);
+            }
+            let (r, g, b, a) = match c {
+                1 => (v[0], v[0], v[0], 1.0),
+                3 => (v[0], v[1], v[2], 1.0),
+                _ => (v[0], v[1], v[2], v[3]),
+            };
+            match format {
+                PixelFormat::Gray8 => {
+                    let l = if c == 1 { v[0] } else { 0.299 * r + 0.587 * g + 0.114 * b };
+                    data.push(byte(l));
+                }
+                PixelFormat::Rgb8 => data.extend_from_slice(&[byte(r), byte(g), byte(b)]),
+                PixelFormat::Rgba8 => data.extend_from_slice(&[byte(r), byte(g), byte(b), byte(a)]),
+            }
+        }
+    }
+    Ok((Pixels { width: w, height: h, format, data }, stats))
+}
+
+/// All images of `images` as 8-bit pixels, with the corrections summed.
+///
+/// # Errors
+/// None in practice; kept fallible for symmetry with [`to_pixels`].
+pub fn all_pixels(images: &Images, format: PixelFormat) -> Result<(Vec<Pixels>, PixelStats)> {
+    let mut total = PixelStats::default();
+    let mut out = Vec::with_capacity(images.count);
+    for i in 0..images.count {
+        let (p, s) = to_pixels(images, i, format)?;
+        total.add(s);
+        out.push(p);
+    }
+    Ok((out, total))
+}
+
+impl Pixels {
+    /// Scales up by an integer factor, nearest neighbour (keeps tiles crisp).
+    pub fn upscale(&self, factor: usize) -> Pixels {
+        if factor <= 1 {
+            return self.clone();
+        }
+        let bpp = self.format.bytes_per_pixel();
+        let (w, h) = (self.width * factor, self.height * factor);
+        let mut data = Vec::with_capacity(w * h * bpp);
+        for y in 0..h {
+            for x in 0..w {
+                let at = ((y / factor) * self.width + x / factor) * bpp;
+                data.extend_from_slice(&self.data[at..at + bpp]);
+            }
+        }
+        Pixels { width: w, height: h, format: self.format, data }
+    }
+
+    /// Converts to another format (gray replicated, alpha added as 255 or dropped).
+    pub fn convert(&self, format: PixelFormat) -> Pixels {
+        if format == self.format {
+            return self.clone();
+        }
+        let bpp = self.format.bytes_per_pixel();
+        let mut data = Vec::with_capacity(self.width * self.height * format.bytes_per_pixel());
+        for px in self.data.chunks(bpp) {
+            let (r, g, b, a) = match self.format {
+                PixelFormat::Gray8 => (px[0], px[0], px[0], 255),
+                PixelFormat::Rgb8 => (px[0], px[1], px[2], 255),
+                PixelFormat::Rgba8 => (px[0], px[1], px[2], px[3]),
+            };
+            match format {
+                PixelFormat::Gray8 => {
+                    let l = 0.299 * f32::from(r) + 0.587 * f32::from(g) + 0.114 * f32::from(b);
+                    data.push((l + 0.5).floor().clamp(0.0, 255.0) as u8);
+                }
+                PixelFormat::Rgb8 => data.extend_from_slice(&[r, g, b]),
+                PixelFormat::Rgba8 => data.extend_from_slice(&[r, g, b, a]),
+            }
+        }
+        Pixels { width: self.width, height: self.height, format, data }
+    }
+
+    fn check(&self) -> Result<()> {
+        let need = self.width * self.height * self.format.bytes_per_pixel();
+        if self.width == 0 || self.height == 0 || self.data.len() != need {
+            return Err(Error::invalid(
+                "pixel buffer",
+                format!("{} bytes for {}x{} {:?}", self.data.len(), self.width, self.height, self.format),
+                format!("{need} bytes and a non-zero size"),
+            ));
+        }
+        if self.width > u32::MAX as usize || self.height > u32::MAX as usize {
+            return Err(Error::invalid("image size", format!("{}x{}", self.width, self.height), "at most 4294967295 per side"));
+        }
+        Ok(())
+    }
+
+    /// PNG bytes of the picture.
+    ///
+    /// # Errors
+    /// [`Error::InvalidOption`] for a buffer that does not match its size; [`Error::Image`].
+    pub fn to_png(&self) -> Result<Vec<u8>> {
+        self.check()?;
+        let mut out = Vec::new();
+        image::codecs::png::PngEncoder::new(&mut out)
+            .write_image(&self.data, self.width as u32, self.height as u32, self.format.color_type())
+            .map_err(|e| Error::Image { what: "PNG".into(), source: Box::new(e) })?;
+        Ok(out)
+    }
+
+    /// Writes a PNG file atomically.
+    ///
+    /// # Errors
+    /// As [`Pixels::to_png`], and [`Error::Io`].
+    pub fn write_png(&self, path: &Path) -> Result<()> {
+        let bytes = self.to_png()?;
+        crate::files::write_atomic(path, &bytes)
+    }
+}
+
+/// How to lay tiles out on a contact sheet.
+#[derive(Debug, Clone, PartialEq, Eq)]
+#[non_exhaustive]
+pub struct GridOptions {
+    /// Tiles per row; `None` for a square-ish sheet (`ceil(sqrt(n))`).
+    pub columns: Option<usize>,
+    /// Pixels between tiles and around the sheet (after scaling). Default 2.
+    pub margin: usize,
+    /// Nearest-neighbour scale factor for each tile. Default 1.
+    pub scale: usize,
+    /// Background colour (RGBA). Default dark grey (32, 32, 32, 255).
+    pub background: [u8; 4],
+}
+
+impl Default for GridOptions {
+    fn default() -> Self {
+        GridOptions { columns: None, margin: 2, scale: 1, background: [32, 32, 32, 255] }
+    }
+}
+
+/// A contact sheet of equally sized tiles, in the widest format among them.
+///
+/// # Errors
+/// [`Error::InvalidOption`] for no tiles, tiles of different sizes, zero columns or scale, or a
+/// sheet over 16384 pixels a side.
+pub fn grid(tiles: &[Pixels], options: &GridOptions) -> Result<Pixels> {
+    let first = tiles.first().ok_or_else(|| Error::invalid("tiles", 0, "at least one image"))?;
+    if let Some(t) = tiles.iter().find(|t| t.width != first.width || t.height != first.height) {
+        return Err(Error::invalid(
+            "tile size",
+            format!("{}x{}", t.width, t.height),
+            format!("every tile {}x{} like the first", first.width, first.height),
+        ));
+    }
+    if options.scale == 0 || options.scale > 64 {
+        return Err(Error::invalid("scale", options.scale, "1 to 64"));
+    }
+    let n = tiles.len();
+    let cols = options.columns.unwrap_or_else(|| (n as f64).sqrt().ceil() as usize).max(1).min(n);
+    if options.columns == Some(0) {
+        return Err(Error::invalid("columns", 0, "at least 1"));
+    }
+    let rows = n.div_ceil(cols);
+    let format = if tiles.iter().any(|t| t.format == PixelFormat::Rgba8) { PixelFormat::Rgba8 } else { PixelFormat::Rgb8 };
+    let bpp = format.bytes_per_pixel();
+    let (tw, th) = (first.width * options.scale, first.height * options.scale);
+    let m = options.margin;
+    let w = cols * tw + (cols + 1) * m;
+    let h = rows * th + (rows + 1) * m;
+    if w > 16384 || h > 16384 {
+        return Err(Error::invalid("sheet size", format!("{w}x{h}"), "at most 16384 pixels a side (use fewer tiles or a smaller scale)"));
+    }
+    let mut data = Vec::with_capacity(w * h * bpp);
+    for _ in 0..w * h {
+        data.extend_from_slice(&options.background[..bpp]);
+    }
+    for (k, tile) in tiles.iter().enumerate() {
+        let t = tile.convert(format).upscale(options.scale);
+        let (r, c) = (k / cols, k % cols);
+        let (x0, y0) = (m + c * (tw + m), m + r * (th + m));
+        for y in 0..th {
+            let dst = ((y0 + y) * w + x0) * bpp;
+            let src = y * tw * bpp;
+            data[dst..dst + tw * bpp].copy_from_slice(&t.data[src..src + tw * bpp]);
+        }
+    }
+    Ok(Pixels { width: w, height: h, format, data })
+}
+
+/// How to write an animated GIF.
+#[derive(Debug, Clone, PartialEq, Eq)]
+#[non_exhaustive]
+pub struct GifOptions {
+    /// Time each frame shows, in milliseconds. Default 80.
+    pub frame_ms: u32,
+    /// Repeat forever (otherwise play once). Default true.
+    pub repeat: bool,
+    /// Nearest-neighbour scale factor. Default 1.
+    pub scale: usize,
+}
+
+impl Default for GifOptions {
+    fn default() -> Self {
+        GifOptions { frame_ms: 80, repeat: true, scale: 1 }
+    }
+}
+
+/// GIF bytes of an animation (each frame quantised to its own 256-colour palette).
+///
+/// # Errors
+/// [`Error::InvalidOption`] for no frames or frames of different sizes; [`Error::Image`].
+pub fn to_gif(frames: &[Pixels], options: &GifOptions) -> Result<Vec<u8>> {
+    use image::codecs::gif::{GifEncoder, Repeat};
+    let first = frames.first().ok_or_else(|| Error::invalid("frames", 0, "at least one frame"))?;
+    if let Some(f) = frames.iter().find(|f| f.width != first.width || f.height != first.height) {
+        return Err(Error::invalid(
+            "frame size",
+            format!("{}x{}", f.width, f.height),
+            format!("every frame {}x{} like the first", first.width, first.height),
+        ));
+    }
+    if options.scale == 0 || options.scale > 64 {
+        return Err(Error::invalid("scale", options.scale, "1 to 64"));
+    }
+    let mut out = Vec::new();
+    {
+        let mut enc = GifEncoder::new_with_speed(&mut out, 10);
+        let img_err = |e: image::ImageError| Error::Image { what: "GIF".into(), source: Box::new(e) };
+        enc.set_repeat(if options.repeat { Repeat::Infinite } else { Repeat::Finite(0) }).map_err(img_err)?;
+        for f in frames {
+            let p = f.convert(PixelFormat::Rgba8).upscale(options.scale);
+            p.check()?;
+            let buf = image::RgbaImage::from_raw(p.width as u32, p.height as u32, p.data)
+                .ok_or_else(|| Error::invalid("frame buffer", "short", "width * height * 4 bytes"))?;
+            let delay = image::Delay::from_numer_denom_ms(options.frame_ms.max(10), 1);
+            enc.encode_frame(image::Frame::from_parts(buf, 0, 0, delay)).map_err(img_err)?;
+        }
+    }
+    Ok(out)
+}
+
+/// Writes an animated GIF atomically.
+///
+/// # Errors
+/// As [`to_gif`], and [`Error::Io`].
+pub fn write_gif(path: &Path, frames: &[Pixels], options: &GifOptions) -> Result<()> {
+    let bytes = to_gif(frames, options)?;
+    crate::files::write_atomic(path, &bytes)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_rule() {
+        let r = ValueRange::TANH;
+        assert_eq!(to_byte(-1.0, r), 0);
+        assert_eq!(to_byte(1.0, r), 255);
+        assert_eq!(to_byte(0.0, r), 128); // 127.5 rounds half up
+        assert_eq!(to_byte(-3.0, r), 0);
+        assert_eq!(to_byte(f32::NAN, r), 0);
+        // Round half up, not to even: 1.5 -> 2 and 2.5 -> 3 levels.
+        assert_eq!(to_byte(1.5, ValueRange::BYTE), 2);
+        assert_eq!(to_byte(2.5, ValueRange::BYTE), 3);
+        assert_eq!(to_byte(127.4, ValueRange::BYTE), 127);
+    }
+
+    #[test]
+    fn grid_layout() {
+        let tile = |v: u8| Pixels { width: 2, height: 2, format: PixelFormat::Rgb8, data: vec![v; 12] };
+        let g = grid(&[tile(10), tile(20), tile(30)], &GridOptions { margin: 1, ..Default::default() }).unwrap();
+        assert_eq!((g.width, g.height), (7, 7));
+        assert_eq!(&g.data[0..3], &[32, 32, 32]);
+        let at = |x: usize, y: usize| g.data[(y * 7 + x) * 3];
+        assert_eq!(at(1, 1), 10);
+        assert_eq!(at(4, 1), 20);
+        assert_eq!(at(1, 4), 30);
+        assert_eq!(at(4, 4), 32);
+    }
+}
