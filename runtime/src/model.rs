@@ -11,7 +11,6 @@ use std::collections::{BTreeMap, HashMap, HashSet};
 use std::path::{Component, Path, PathBuf};
 use tract_onnx::pb;
 use tract_onnx::prelude::*;
-use tract_onnx::tract_hir::infer::Factoid;
 use tract_onnx::tract_core::internal::DimLike;
 
 /// Upper bounds on what a model and a request may cost. The defaults are generous for image
@@ -596,9 +595,6 @@ fn build_typed(proto: &pb::ModelProto, found: &signature::FoundInputs) -> Result
         .iter()
         .position(|o| parsed.outlets_by_name.get(&found.output).is_some_and(|x| x == o))
         .ok_or_else(|| Error::Signature { reason: format!("output `{}` is not among tract's outputs", found.output) })?;
-    // Multiply-accumulates from the analysed shapes.
-    model.analyse(false).map_err(|e| Error::tract("infer the shapes", e))?;
-    let macs = count_macs(proto, &model, &parsed.outlets_by_name, batch_symbol.as_ref());
     let typed = model.into_typed().map_err(|e| Error::tract("type the model (infer every shape and type)", e))?;
     let out = typed.output_outlets().map_err(|e| Error::tract("list the outputs", e))?[output_index];
     let fact = typed.outlet_fact(out).map_err(|e| Error::tract("read the output fact", e))?;
@@ -608,38 +604,54 @@ fn build_typed(proto: &pb::ModelProto, found: &signature::FoundInputs) -> Result
         });
     }
     let shape: Vec<TDim> = fact.shape.iter().cloned().collect();
+    let macs = count_macs(proto, &typed, batch_symbol.as_ref());
     Ok((typed, batch_symbol, roles, output_index, shape, macs))
 }
 
-fn count_macs(
-    proto: &pb::ModelProto,
-    model: &InferenceModel,
-    outlets: &HashMap<String, OutletId>,
-    batch: Option<&Symbol>,
-) -> Option<u64> {
+fn count_macs(proto: &pb::ModelProto, typed: &TypedModel, batch: Option<&Symbol>) -> Option<u64> {
     let graph = proto.graph.as_ref()?;
     let values = match batch {
         Some(s) => SymbolValues::default().with(s, 1),
         None => SymbolValues::default(),
     };
+    let mut producer: HashMap<&str, (&str, usize)> = HashMap::new();
+    for n in &graph.node {
+        for (slot, o) in n.output.iter().enumerate() {
+            producer.insert(o.as_str(), (n.name.as_str(), slot));
+        }
+    }
+    let inits: HashMap<&str, &pb::TensorProto> = graph.initializer.iter().map(|t| (t.name.as_str(), t)).collect();
+    // Shapes per sample (batch evaluated at 1), read from tract's typed model.
     let shape_of = |name: &str| -> Option<Vec<u64>> {
-        let fact = model.outlet_fact(*outlets.get(name)?).ok()?;
-        let dims = fact.shape.concretize()?;
-        dims.iter().map(|d| d.eval(&values).to_usize().ok().map(|v| v as u64)).collect()
+        if let Some(t) = inits.get(name) {
+            return Some(t.dims.iter().map(|&d| d.max(0) as u64).collect());
+        }
+        let (node, slot) = match producer.get(name) {
+            Some(&(n, s)) => (n, s),
+            None => (name, 0),
+        };
+        // tract keeps the ONNX name on the last node of an op's expansion, or names the
+        // expansion `NAME.something`: take the exact name, else the last non-constant `NAME.*`.
+        let node = typed.node_by_name(node).ok().or_else(|| {
+            let prefix = format!("{node}.");
+            typed.nodes().iter().filter(|n| n.name.starts_with(&prefix) && n.op.name() != "Const").max_by_key(|n| n.id)
+        })?;
+        let fact = &node.outputs.get(slot).or_else(|| node.outputs.first())?.fact;
+        fact.shape.iter().map(|d| d.eval(&values).to_usize().ok().map(|v| v as u64)).collect()
     };
     let mut total = 0u64;
     for n in &graph.node {
         let macs = match n.op_type.as_str() {
             "Conv" => {
+                // Each output element sums C_in/group * kH * kW products.
                 let w = shape_of(n.input.get(1)?)?;
                 let y = shape_of(n.output.first()?)?;
-                let per_out: u64 = w.iter().skip(1).product();
-                y.iter().skip(1).product::<u64>() * per_out
+                y.iter().skip(1).product::<u64>() * w.iter().skip(1).product::<u64>()
             }
             "ConvTranspose" => {
+                // Each input element meets C_out/group * kH * kW weights.
                 let x = shape_of(n.input.first()?)?;
                 let w = shape_of(n.input.get(1)?)?;
-                // Each input element meets C_out/group * kH * kW weights.
                 x.iter().skip(1).product::<u64>() * w.iter().skip(1).product::<u64>()
             }
             "Gemm" | "MatMul" => {
