@@ -162,7 +162,7 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     ap.add_argument("--quick", action="store_true", help="smoke run: tiny data, 20 steps per model")
     ap.add_argument("--only", choices=["tiles", "tiles-kind"], help="train just one model")
-    ap.add_argument("--epochs", type=int, default=6)
+    ap.add_argument("--epochs", type=int, default=10)
     ap.add_argument("--threads", type=int, default=THREADS, help="torch CPU threads (default 2)")
     ap.add_argument("--per-kind", type=int, default=8192, help="training tiles per kind")
     ap.add_argument("--max-minutes", type=float, default=13.0,

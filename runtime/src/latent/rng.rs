@@ -187,7 +187,7 @@ impl Mt19937 {
             let x2 = 2.0 * self.next_f64() - 1.0;
             let r2 = x1 * x1 + x2 * x2;
             if r2 < 1.0 && r2 != 0.0 {
-                let f = libm::sqrt(-2.0 * libm::log(r2) / r2);
+                let f = libm::sqrt(-2.0 * super::crlog::ln(r2) / r2);
                 self.gauss = Some(f * x1);
                 return f * x2;
             }

@@ -1,0 +1,1 @@
+//! The demo models of models-demo/ (filled in when they are trained).
