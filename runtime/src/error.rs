@@ -150,7 +150,9 @@ pub enum Error {
         expected: usize,
     },
     /// A latent holds NaN or infinity.
-    #[error("latent {index} has a non-finite value ({value}) at component {component}: latents must be finite")]
+    #[error(
+        "latent {index} has a non-finite value ({value}) at component {component}: latents must be finite"
+    )]
     NonFiniteLatent {
         /// Which latent.
         index: usize,
@@ -287,11 +289,7 @@ impl Error {
         value: impl std::fmt::Display,
         expected: impl Into<String>,
     ) -> Error {
-        Error::InvalidOption {
-            option: option.into(),
-            value: value.to_string(),
-            expected: expected.into(),
-        }
+        Error::InvalidOption { option: option.into(), value: value.to_string(), expected: expected.into() }
     }
 
     pub(crate) fn io(action: &str, path: impl Into<PathBuf>, source: std::io::Error) -> Error {

@@ -141,7 +141,12 @@ impl Generator {
             model.limits().max_micro_batch_bytes,
             "Limits::max_micro_batch_bytes (or use a smaller micro-batch)",
         )?;
-        let plans = Plans::new(model.typed.clone(), model.batch_symbol.clone(), fixed, options.max_cached_plans.max(1));
+        let plans = Plans::new(
+            model.typed.clone(),
+            model.batch_symbol.clone(),
+            fixed,
+            options.max_cached_plans.max(1),
+        );
         let generator = Generator { model, plans, options };
         if generator.options.warm_up {
             generator.plans.warm(generator.options.micro_batch)?;
@@ -185,7 +190,12 @@ impl Generator {
     /// # Errors
     /// As [`Latents::sample`].
     pub fn sample_latents(&self, options: &SampleOptions) -> Result<Latents> {
-        check_limit("the image count", options.count as u64, self.model.limits().max_images, "Limits::max_images")?;
+        check_limit(
+            "the image count",
+            options.count as u64,
+            self.model.limits().max_images,
+            "Limits::max_images",
+        )?;
         Latents::sample(self.signature().latent.dim, options)
     }
 
@@ -289,27 +299,47 @@ impl Generator {
     fn check<'a>(&self, latents: &'a Latents, labels: Option<&'a [i64]>) -> Result<Checked<'a>> {
         let sig = self.signature();
         if latents.dim() != sig.latent.dim {
-            return Err(Error::LatentDim { name: sig.latent.name.clone(), actual: latents.dim(), expected: sig.latent.dim });
+            return Err(Error::LatentDim {
+                name: sig.latent.name.clone(),
+                actual: latents.dim(),
+                expected: sig.latent.dim,
+            });
         }
-        check_limit("the image count", latents.count() as u64, self.model.limits().max_images, "Limits::max_images")?;
+        check_limit(
+            "the image count",
+            latents.count() as u64,
+            self.model.limits().max_images,
+            "Limits::max_images",
+        )?;
         crate::latent::check_finite(latents.as_slice(), latents.dim())?;
         match (&sig.label, labels) {
             (None, None) => {}
             (None, Some(_)) => {
-                return Err(Error::Labels { reason: "this model is unconditional (it has no label input); give no labels".into() })
+                return Err(Error::Labels {
+                    reason: "this model is unconditional (it has no label input); give no labels".into(),
+                })
             }
             (Some(l), None) => {
                 return Err(Error::Labels {
-                    reason: format!("this model is conditional: input `{}` needs one class (0..{}) per image", l.name, l.classes),
+                    reason: format!(
+                        "this model is conditional: input `{}` needs one class (0..{}) per image",
+                        l.name, l.classes
+                    ),
                 })
             }
             (Some(l), Some(ls)) => {
                 if ls.len() != latents.count() {
                     return Err(Error::Labels {
-                        reason: format!("{} labels for {} latents, expected one label per latent", ls.len(), latents.count()),
+                        reason: format!(
+                            "{} labels for {} latents, expected one label per latent",
+                            ls.len(),
+                            latents.count()
+                        ),
                     });
                 }
-                if let Some((i, &v)) = ls.iter().enumerate().find(|(_, &v)| v < 0 || v as u64 >= l.classes as u64) {
+                if let Some((i, &v)) =
+                    ls.iter().enumerate().find(|(_, &v)| v < 0 || v as u64 >= l.classes as u64)
+                {
                     return Err(Error::LabelOutOfRange { index: i, label: v, classes: l.classes });
                 }
             }
@@ -342,8 +372,12 @@ impl Generator {
                     Tensor::from_shape(&shape, &z).map_err(|e| Error::tract("build the latent tensor", e))?
                 }
                 InputRole::Label => {
-                    let l = sig.label.as_ref().ok_or_else(|| Error::Labels { reason: "internal: label role without label".into() })?;
-                    let ls = req.labels.ok_or_else(|| Error::Labels { reason: "internal: labels missing".into() })?;
+                    let l = sig.label.as_ref().ok_or_else(|| Error::Labels {
+                        reason: "internal: label role without label".into(),
+                    })?;
+                    let ls = req
+                        .labels
+                        .ok_or_else(|| Error::Labels { reason: "internal: labels missing".into() })?;
                     let pick = |i: usize| ls[s + i.min(n - 1)];
                     match l.kind {
                         LabelKind::Index if l.int32 => {
@@ -369,9 +403,9 @@ impl Generator {
         }
         let plan = self.plans.plan_for(batch)?;
         let outputs = plan.run(inputs).map_err(|e| Error::tract(format!("run a batch of {batch}"), e))?;
-        let out = outputs
-            .get(self.model.output_index)
-            .ok_or_else(|| Error::Output { reason: format!("the model returned {} outputs", outputs.len()) })?;
+        let out = outputs.get(self.model.output_index).ok_or_else(|| Error::Output {
+            reason: format!("the model returned {} outputs", outputs.len()),
+        })?;
         let out = out.cast_to::<f32>().map_err(|e| Error::tract("read the output as f32", e))?;
         let per = sig.image.values_per_image();
         let view = out.try_as_plain_ram().map_err(|e| Error::tract("read the output", e))?;

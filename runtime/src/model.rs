@@ -126,7 +126,12 @@ impl Model {
                 std::io::Error::other("it is a folder; expected an .onnx file"),
             ));
         }
-        check_limit("the model file's size in bytes", meta.len(), options.limits.max_model_bytes, "Limits::max_model_bytes")?;
+        check_limit(
+            "the model file's size in bytes",
+            meta.len(),
+            options.limits.max_model_bytes,
+            "Limits::max_model_bytes",
+        )?;
         let bytes = std::fs::read(path).map_err(|e| Error::io("read", path, e))?;
         let dir = path.parent().map(Path::to_path_buf).unwrap_or_default();
         let dir = if dir.as_os_str().is_empty() { PathBuf::from(".") } else { dir };
@@ -146,7 +151,12 @@ impl Model {
     }
 
     fn load(bytes: &[u8], what: &str, dir: Option<&Path>, options: &LoadOptions) -> Result<Model> {
-        check_limit("the model's size in bytes", bytes.len() as u64, options.limits.max_model_bytes, "Limits::max_model_bytes")?;
+        check_limit(
+            "the model's size in bytes",
+            bytes.len() as u64,
+            options.limits.max_model_bytes,
+            "Limits::max_model_bytes",
+        )?;
         sniff(bytes, what)?;
         let mut proto = decode(bytes, what)?;
         let sha256 = hex(&Sha256::digest(bytes));
@@ -157,14 +167,25 @@ impl Model {
             reason: "it is protobuf but holds no graph".into(),
         })?;
         let (parameters, weight_bytes) = check_tensors(graph)?;
-        check_limit("the model's parameter count", parameters, options.limits.max_parameters, "Limits::max_parameters")?;
+        check_limit(
+            "the model's parameter count",
+            parameters,
+            options.limits.max_parameters,
+            "Limits::max_parameters",
+        )?;
         check_graph(graph)?;
 
         let found = signature::discover_inputs(graph, &options.overrides)?;
-        let (typed, batch_symbol, input_order, output_index, image_shape, macs) = build_typed(&proto, &found)?;
+        let (typed, batch_symbol, input_order, output_index, image_shape, macs) =
+            build_typed(&proto, &found)?;
         let signature = signature::finish(graph, &found, &image_shape, &options.overrides)?;
         let pixels = signature.image.height as u64 * signature.image.width as u64;
-        check_limit("the output's pixels per image", pixels, options.limits.max_output_pixels, "Limits::max_output_pixels")?;
+        check_limit(
+            "the output's pixels per image",
+            pixels,
+            options.limits.max_output_pixels,
+            "Limits::max_output_pixels",
+        )?;
 
         let mut ops = BTreeMap::new();
         for n in &graph.node {
@@ -191,7 +212,16 @@ impl Model {
             macs_per_sample: macs,
             metadata,
         };
-        Ok(Model { proto, typed, batch_symbol, input_order, output_index, signature, info, limits: options.limits })
+        Ok(Model {
+            proto,
+            typed,
+            batch_symbol,
+            input_order,
+            output_index,
+            signature,
+            info,
+            limits: options.limits,
+        })
     }
 
     /// The discovered (or declared) signature.
@@ -234,7 +264,10 @@ fn sniff(bytes: &[u8], what: &str) -> Result<()> {
     let head = &bytes[..bytes.len().min(512)];
     let text = String::from_utf8_lossy(head);
     let trimmed = text.trim_start_matches(['\u{feff}', ' ', '\t', '\r', '\n']).to_ascii_lowercase();
-    if trimmed.starts_with("<!doctype html") || trimmed.starts_with("<html") || trimmed.starts_with("<?xml") && trimmed.contains("<html") {
+    if trimmed.starts_with("<!doctype html")
+        || trimmed.starts_with("<html")
+        || trimmed.starts_with("<?xml") && trimmed.contains("<html")
+    {
         return Err(Error::HtmlPage { what: what.to_string() });
     }
     if trimmed.starts_with("version https://git-lfs.github.com/spec/") {
@@ -246,7 +279,10 @@ fn sniff(bytes: &[u8], what: &str) -> Result<()> {
     if printable && bytes.len() >= 8 {
         return Err(Error::NotOnnx {
             what: what.to_string(),
-            reason: format!("it is plain text (starts with {:?}), while ONNX models are binary protobuf", first_line(&text)),
+            reason: format!(
+                "it is plain text (starts with {:?}), while ONNX models are binary protobuf",
+                first_line(&text)
+            ),
         });
     }
     Ok(())
@@ -264,7 +300,10 @@ fn decode(bytes: &[u8], what: &str) -> Result<pb::ModelProto> {
         reason: format!("its protobuf does not decode as an ONNX ModelProto ({e}); is the file truncated or of another format?"),
     })?;
     if proto.graph.is_none() {
-        return Err(Error::NotOnnx { what: what.to_string(), reason: "it decodes as protobuf but holds no graph".into() });
+        return Err(Error::NotOnnx {
+            what: what.to_string(),
+            reason: "it decodes as protobuf but holds no graph".into(),
+        });
     }
     if proto.ir_version <= 0 && proto.opset_import.is_empty() {
         return Err(Error::NotOnnx {
@@ -299,7 +338,9 @@ fn element_count(t: &pb::TensorProto) -> Result<u64> {
     let mut n: u64 = 1;
     for &d in &t.dims {
         if d < 0 {
-            return Err(Error::Graph { reason: format!("tensor `{}` has a negative dimension {d} in {:?}", t.name, t.dims) });
+            return Err(Error::Graph {
+                reason: format!("tensor `{}` has a negative dimension {d} in {:?}", t.name, t.dims),
+            });
         }
         n = n.checked_mul(d as u64).ok_or_else(|| Error::Limit {
             limit: format!("the element count of tensor `{}`", t.name),
@@ -312,7 +353,10 @@ fn element_count(t: &pb::TensorProto) -> Result<u64> {
 }
 
 /// Every tensor stored in the graph: initializers and Constant nodes' `value` attributes.
-fn for_each_tensor_mut(graph: &mut pb::GraphProto, f: &mut dyn FnMut(&mut pb::TensorProto) -> Result<()>) -> Result<()> {
+fn for_each_tensor_mut(
+    graph: &mut pb::GraphProto,
+    f: &mut dyn FnMut(&mut pb::TensorProto) -> Result<()>,
+) -> Result<()> {
     for t in &mut graph.initializer {
         f(t)?;
     }
@@ -394,10 +438,25 @@ fn resolve_external_data(
                     reason: "resolves (through a link) outside the model's folder".into(),
                 });
             }
-            let len = std::fs::metadata(&real).map_err(|e| Error::ExternalDataMissing { tensor: t.name.clone(), path: real.clone(), source: e })?.len();
+            let len = std::fs::metadata(&real)
+                .map_err(|e| Error::ExternalDataMissing {
+                    tensor: t.name.clone(),
+                    path: real.clone(),
+                    source: e,
+                })?
+                .len();
             *total += len;
-            check_limit("the model's size in bytes with its external data", *total, limits.max_model_bytes, "Limits::max_model_bytes")?;
-            let data = std::fs::read(&real).map_err(|e| Error::ExternalDataMissing { tensor: t.name.clone(), path: real.clone(), source: e })?;
+            check_limit(
+                "the model's size in bytes with its external data",
+                *total,
+                limits.max_model_bytes,
+                "Limits::max_model_bytes",
+            )?;
+            let data = std::fs::read(&real).map_err(|e| Error::ExternalDataMissing {
+                tensor: t.name.clone(),
+                path: real.clone(),
+                source: e,
+            })?;
             files.insert(location.clone(), data);
         }
         let data = &files[&location];
@@ -416,7 +475,7 @@ fn resolve_external_data(
             tensor: t.name.clone(),
             reason: format!("external data of element type {} is not supported", dtype_name(t.data_type)),
         })? as u64;
-        let expected = elems.checked_mul(size).unwrap_or(u64::MAX);
+        let expected = elems.saturating_mul(size);
         let length = parse_num("length")?.unwrap_or(expected);
         if length != expected {
             return Err(Error::ExternalDataRange {
@@ -465,7 +524,11 @@ fn check_tensors(graph: &pb::GraphProto) -> Result<(u64, u64)> {
             }
             expected
         } else {
-            let count = (t.float_data.len() + t.int32_data.len() + t.int64_data.len() + t.double_data.len() + t.uint64_data.len()) as u64;
+            let count = (t.float_data.len()
+                + t.int32_data.len()
+                + t.int64_data.len()
+                + t.double_data.len()
+                + t.uint64_data.len()) as u64;
             if count != 0 && count != n && t.data_type != 8 {
                 return Err(Error::TensorSize {
                     tensor: t.name.clone(),
@@ -500,7 +563,10 @@ fn check_graph(graph: &pb::GraphProto) -> Result<()> {
         for inp in &n.input {
             if !inp.is_empty() && !known.contains(inp.as_str()) && !producer.contains_key(inp.as_str()) {
                 return Err(Error::Graph {
-                    reason: format!("node `{}` ({}) reads `{inp}`, which no node, input or initializer provides", n.name, n.op_type),
+                    reason: format!(
+                        "node `{}` ({}) reads `{inp}`, which no node, input or initializer provides",
+                        n.name, n.op_type
+                    ),
                 });
             }
         }
@@ -535,8 +601,13 @@ fn check_graph(graph: &pb::GraphProto) -> Result<()> {
         }
     }
     if seen != graph.node.len() {
-        let stuck = (0..graph.node.len()).find(|&i| indegree[i] > 0).map(|i| graph.node[i].name.clone()).unwrap_or_default();
-        return Err(Error::Graph { reason: format!("it has a cycle (through node `{stuck}`); ONNX graphs must be acyclic") });
+        let stuck = (0..graph.node.len())
+            .find(|&i| indegree[i] > 0)
+            .map(|i| graph.node[i].name.clone())
+            .unwrap_or_default();
+        return Err(Error::Graph {
+            reason: format!("it has a cycle (through node `{stuck}`); ONNX graphs must be acyclic"),
+        });
     }
     Ok(())
 }
@@ -548,7 +619,9 @@ fn build_typed(proto: &pb::ModelProto, found: &signature::FoundInputs) -> Result
     let onnx = tract_onnx::onnx().with_ignore_output_shapes(true).with_ignore_value_info(true);
     let parsed = onnx.parse(proto, None).map_err(|e| Error::tract("parse the model", e))?;
     if !parsed.unresolved_inputs.is_empty() {
-        return Err(Error::Graph { reason: format!("inputs {:?} could not be resolved", parsed.unresolved_inputs) });
+        return Err(Error::Graph {
+            reason: format!("inputs {:?} could not be resolved", parsed.unresolved_inputs),
+        });
     }
     let mut model = parsed.model;
     let batch_symbol = match found.batch {
@@ -561,7 +634,8 @@ fn build_typed(proto: &pb::ModelProto, found: &signature::FoundInputs) -> Result
         (None, signature::Batch::Symbolic) => 1.to_dim(),
     };
     let mut roles = vec![];
-    let inputs: Vec<OutletId> = model.input_outlets().map_err(|e| Error::tract("list the inputs", e))?.to_vec();
+    let inputs: Vec<OutletId> =
+        model.input_outlets().map_err(|e| Error::tract("list the inputs", e))?.to_vec();
     for (ix, outlet) in inputs.iter().enumerate() {
         let name = model.node(outlet.node).name.clone();
         let fact = if name == found.latent.name {
@@ -580,25 +654,37 @@ fn build_typed(proto: &pb::ModelProto, found: &signature::FoundInputs) -> Result
                     let dt = if label.int32 { i32::datum_type() } else { i64::datum_type() };
                     InferenceFact::dt_shape(dt, tvec![batch_dim.clone()])
                 }
-                signature::LabelKind::OneHot => {
-                    InferenceFact::dt_shape(f32::datum_type(), tvec![batch_dim.clone(), label.classes.to_dim()])
-                }
+                signature::LabelKind::OneHot => InferenceFact::dt_shape(
+                    f32::datum_type(),
+                    tvec![batch_dim.clone(), label.classes.to_dim()],
+                ),
             }
         } else {
-            return Err(Error::Signature { reason: format!("tract sees an input `{name}` that is neither the latent nor the label") });
+            return Err(Error::Signature {
+                reason: format!("tract sees an input `{name}` that is neither the latent nor the label"),
+            });
         };
-        model.set_input_fact(ix, fact).map_err(|e| Error::tract(format!("set the fact of input `{name}`"), e))?;
+        model
+            .set_input_fact(ix, fact)
+            .map_err(|e| Error::tract(format!("set the fact of input `{name}`"), e))?;
     }
     // Find the image output among the model outputs.
-    let outputs: Vec<OutletId> = model.output_outlets().map_err(|e| Error::tract("list the outputs", e))?.to_vec();
+    let outputs: Vec<OutletId> =
+        model.output_outlets().map_err(|e| Error::tract("list the outputs", e))?.to_vec();
     let output_index = outputs
         .iter()
         .position(|o| parsed.outlets_by_name.get(&found.output).is_some_and(|x| x == o))
-        .ok_or_else(|| Error::Signature { reason: format!("output `{}` is not among tract's outputs", found.output) })?;
-    let typed = model.into_typed().map_err(|e| Error::tract("type the model (infer every shape and type)", e))?;
+        .ok_or_else(|| Error::Signature {
+            reason: format!("output `{}` is not among tract's outputs", found.output),
+        })?;
+    let typed =
+        model.into_typed().map_err(|e| Error::tract("type the model (infer every shape and type)", e))?;
     let out = typed.output_outlets().map_err(|e| Error::tract("list the outputs", e))?[output_index];
     let fact = typed.outlet_fact(out).map_err(|e| Error::tract("read the output fact", e))?;
-    if fact.datum_type != f32::datum_type() && fact.datum_type != f16::datum_type() && fact.datum_type != f64::datum_type() {
+    if fact.datum_type != f32::datum_type()
+        && fact.datum_type != f16::datum_type()
+        && fact.datum_type != f64::datum_type()
+    {
         return Err(Error::Signature {
             reason: format!("output `{}` is {:?}, expected a float tensor", found.output, fact.datum_type),
         });
@@ -620,7 +706,8 @@ fn count_macs(proto: &pb::ModelProto, typed: &TypedModel, batch: Option<&Symbol>
             producer.insert(o.as_str(), (n.name.as_str(), slot));
         }
     }
-    let inits: HashMap<&str, &pb::TensorProto> = graph.initializer.iter().map(|t| (t.name.as_str(), t)).collect();
+    let inits: HashMap<&str, &pb::TensorProto> =
+        graph.initializer.iter().map(|t| (t.name.as_str(), t)).collect();
     // Shapes per sample (batch evaluated at 1), read from tract's typed model.
     let shape_of = |name: &str| -> Option<Vec<u64>> {
         if let Some(t) = inits.get(name) {
@@ -634,7 +721,11 @@ fn count_macs(proto: &pb::ModelProto, typed: &TypedModel, batch: Option<&Symbol>
         // expansion `NAME.something`: take the exact name, else the last non-constant `NAME.*`.
         let node = typed.node_by_name(node).ok().or_else(|| {
             let prefix = format!("{node}.");
-            typed.nodes().iter().filter(|n| n.name.starts_with(&prefix) && n.op.name() != "Const").max_by_key(|n| n.id)
+            typed
+                .nodes()
+                .iter()
+                .filter(|n| n.name.starts_with(&prefix) && n.op.name() != "Const")
+                .max_by_key(|n| n.id)
         })?;
         let fact = &node.outputs.get(slot).or_else(|| node.outputs.first())?.fact;
         fact.shape.iter().map(|d| d.eval(&values).to_usize().ok().map(|v| v as u64)).collect()

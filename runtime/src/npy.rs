@@ -83,16 +83,19 @@ pub fn parse(bytes: &[u8], what: &str) -> Result<NpyArray> {
             (u32::from_le_bytes([bytes[8], bytes[9], bytes[10], bytes[11]]) as usize, 12)
         }
         _ => {
-            return Err(err(what, format!("format version {major}.{minor} is not supported; expected 1.0, 2.0 or 3.0")))
+            return Err(err(
+                what,
+                format!("format version {major}.{minor} is not supported; expected 1.0, 2.0 or 3.0"),
+            ))
         }
     };
-    let end = start
-        .checked_add(header_len)
-        .filter(|&e| e <= bytes.len())
-        .ok_or_else(|| err(what, format!("the header says it is {header_len} bytes but the file ends first")))?;
+    let end = start.checked_add(header_len).filter(|&e| e <= bytes.len()).ok_or_else(|| {
+        err(what, format!("the header says it is {header_len} bytes but the file ends first"))
+    })?;
     let header = std::str::from_utf8(&bytes[start..end]).map_err(|_| err(what, "the header is not text"))?;
     let descr = dict_value(header, "descr").ok_or_else(|| err(what, "the header has no 'descr'"))?;
-    let fortran = dict_value(header, "fortran_order").ok_or_else(|| err(what, "the header has no 'fortran_order'"))?;
+    let fortran =
+        dict_value(header, "fortran_order").ok_or_else(|| err(what, "the header has no 'fortran_order'"))?;
     let shape_text = dict_value(header, "shape").ok_or_else(|| err(what, "the header has no 'shape'"))?;
     if fortran.trim() != "False" {
         return Err(err(
@@ -101,7 +104,8 @@ pub fn parse(bytes: &[u8], what: &str) -> Result<NpyArray> {
         ));
     }
     let descr = descr.trim().trim_matches(|c| c == '\'' || c == '"');
-    let shape = parse_shape(shape_text).ok_or_else(|| err(what, format!("the shape {shape_text} is not a tuple of sizes")))?;
+    let shape = parse_shape(shape_text)
+        .ok_or_else(|| err(what, format!("the shape {shape_text} is not a tuple of sizes")))?;
     let count = shape
         .iter()
         .try_fold(1usize, |a, &d| a.checked_mul(d))
@@ -119,9 +123,8 @@ pub fn parse(bytes: &[u8], what: &str) -> Result<NpyArray> {
     if descr.starts_with('|') && kind.starts_with('O') || kind.starts_with('O') {
         return Err(err(what, "the array holds Python objects (a pickle); save a numeric array instead"));
     }
-    let expected = count
-        .checked_mul(size)
-        .ok_or_else(|| err(what, format!("the shape {shape:?} is too large")))?;
+    let expected =
+        count.checked_mul(size).ok_or_else(|| err(what, format!("the shape {shape:?} is too large")))?;
     if size == 0 || !matches!(kind, "f4" | "f8" | "i8" | "i4" | "i2" | "i1" | "u1") {
         return Err(err(
             what,
@@ -255,14 +258,20 @@ impl NpyArray {
         if !ok_shape {
             return Err(err(
                 what,
-                format!("latents have shape {:?}, expected (N, {dim}) for this model's {dim}-value latents", self.shape),
+                format!(
+                    "latents have shape {:?}, expected (N, {dim}) for this model's {dim}-value latents",
+                    self.shape
+                ),
             ));
         }
         let values = match self.data {
             NpyData::F32(v) => v,
             NpyData::F64(v) => v.into_iter().map(|x| x as f32).collect(),
             other => {
-                return Err(err(what, format!("latents are {}, expected float32 or float64", other.dtype_name())))
+                return Err(err(
+                    what,
+                    format!("latents are {}, expected float32 or float64", other.dtype_name()),
+                ))
             }
         };
         Latents::new(dim, values)
@@ -280,7 +289,9 @@ impl NpyArray {
             NpyData::I64(v) => Ok(v),
             NpyData::I32(v) => Ok(v.into_iter().map(i64::from).collect()),
             NpyData::U8(v) => Ok(v.into_iter().map(i64::from).collect()),
-            other => Err(err(what, format!("labels are {}, expected int64 (or int32, uint8)", other.dtype_name()))),
+            other => {
+                Err(err(what, format!("labels are {}, expected int64 (or int32, uint8)", other.dtype_name())))
+            }
         }
     }
 }

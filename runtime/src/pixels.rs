@@ -218,7 +218,11 @@ impl Pixels {
             ));
         }
         if self.width > u32::MAX as usize || self.height > u32::MAX as usize {
-            return Err(Error::invalid("image size", format!("{}x{}", self.width, self.height), "at most 4294967295 per side"));
+            return Err(Error::invalid(
+                "image size",
+                format!("{}x{}", self.width, self.height),
+                "at most 4294967295 per side",
+            ));
         }
         Ok(())
     }
@@ -289,14 +293,22 @@ pub fn grid(tiles: &[Pixels], options: &GridOptions) -> Result<Pixels> {
         return Err(Error::invalid("columns", 0, "at least 1"));
     }
     let rows = n.div_ceil(cols);
-    let format = if tiles.iter().any(|t| t.format == PixelFormat::Rgba8) { PixelFormat::Rgba8 } else { PixelFormat::Rgb8 };
+    let format = if tiles.iter().any(|t| t.format == PixelFormat::Rgba8) {
+        PixelFormat::Rgba8
+    } else {
+        PixelFormat::Rgb8
+    };
     let bpp = format.bytes_per_pixel();
     let (tw, th) = (first.width * options.scale, first.height * options.scale);
     let m = options.margin;
     let w = cols * tw + (cols + 1) * m;
     let h = rows * th + (rows + 1) * m;
     if w > 16384 || h > 16384 {
-        return Err(Error::invalid("sheet size", format!("{w}x{h}"), "at most 16384 pixels a side (use fewer tiles or a smaller scale)"));
+        return Err(Error::invalid(
+            "sheet size",
+            format!("{w}x{h}"),
+            "at most 16384 pixels a side (use fewer tiles or a smaller scale)",
+        ));
     }
     let mut data = Vec::with_capacity(w * h * bpp);
     for _ in 0..w * h {
@@ -397,7 +409,8 @@ mod tests {
     #[test]
     fn grid_layout() {
         let tile = |v: u8| Pixels { width: 2, height: 2, format: PixelFormat::Rgb8, data: vec![v; 12] };
-        let g = grid(&[tile(10), tile(20), tile(30)], &GridOptions { margin: 1, ..Default::default() }).unwrap();
+        let g =
+            grid(&[tile(10), tile(20), tile(30)], &GridOptions { margin: 1, ..Default::default() }).unwrap();
         assert_eq!((g.width, g.height), (7, 7));
         assert_eq!(&g.data[0..3], &[32, 32, 32]);
         let at = |x: usize, y: usize| g.data[(y * 7 + x) * 3];

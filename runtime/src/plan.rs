@@ -25,8 +25,20 @@ pub(crate) struct Plans {
 }
 
 impl Plans {
-    pub(crate) fn new(typed: TypedModel, batch_symbol: Option<Symbol>, fixed_batch: Option<usize>, max_cached: usize) -> Plans {
-        Plans { typed, batch_symbol, fixed_batch, symbolic: OnceLock::new(), cache: Mutex::new(HashMap::new()), max_cached }
+    pub(crate) fn new(
+        typed: TypedModel,
+        batch_symbol: Option<Symbol>,
+        fixed_batch: Option<usize>,
+        max_cached: usize,
+    ) -> Plans {
+        Plans {
+            typed,
+            batch_symbol,
+            fixed_batch,
+            symbolic: OnceLock::new(),
+            cache: Mutex::new(HashMap::new()),
+            max_cached,
+        }
     }
 
     /// Builds the plan for `batch` now (so the first generation does not pay for it).
@@ -45,11 +57,15 @@ impl Plans {
         let model = match &self.batch_symbol {
             Some(sym) => {
                 let subs = HashMap::from([(sym.clone(), TDim::from(batch as i64))]);
-                self.typed.set_symbols(&subs).map_err(|e| Error::tract(format!("fix the batch at {batch}"), e))?
+                self.typed
+                    .set_symbols(&subs)
+                    .map_err(|e| Error::tract(format!("fix the batch at {batch}"), e))?
             }
             None => self.typed.clone(),
         };
-        let optimised = model.into_optimized().map_err(|e| Error::tract(format!("optimise the batch-{batch} plan"), e))?;
+        let optimised = model
+            .into_optimized()
+            .map_err(|e| Error::tract(format!("optimise the batch-{batch} plan"), e))?;
         optimised.into_runnable().map_err(|e| Error::tract(format!("build the batch-{batch} plan"), e))
     }
 
@@ -58,7 +74,9 @@ impl Plans {
     pub(crate) fn plan_for(&self, batch: usize) -> Result<Runnable> {
         if let Some(fixed) = self.fixed_batch {
             if fixed != batch {
-                return Err(Error::Output { reason: format!("internal: batch {batch} asked of a fixed batch-{fixed} model") });
+                return Err(Error::Output {
+                    reason: format!("internal: batch {batch} asked of a fixed batch-{fixed} model"),
+                });
             }
         }
         if let Some(p) = self.cache.lock().ok().and_then(|c| c.get(&batch).cloned()) {

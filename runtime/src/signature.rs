@@ -279,7 +279,8 @@ fn describe(v: &pb::ValueInfoProto) -> InputDesc {
 }
 
 fn shape_text(d: &InputDesc) -> String {
-    let dims: Vec<String> = d.dims.iter().map(|x| x.map(|v| v.to_string()).unwrap_or_else(|| "?".into())).collect();
+    let dims: Vec<String> =
+        d.dims.iter().map(|x| x.map(|v| v.to_string()).unwrap_or_else(|| "?".into())).collect();
     format!("[{}]", dims.join(", "))
 }
 
@@ -289,26 +290,48 @@ fn is_float(elem: i32) -> bool {
 
 fn latent_like(name: &str) -> bool {
     let n = name.to_ascii_lowercase();
-    ["z", "latent", "latents", "noise", "input_z", "z_in", "code"].contains(&n.as_str()) || n.contains("latent") || n.contains("noise")
+    ["z", "latent", "latents", "noise", "input_z", "z_in", "code"].contains(&n.as_str())
+        || n.contains("latent")
+        || n.contains("noise")
 }
 
 fn label_like(name: &str) -> bool {
     let n = name.to_ascii_lowercase();
-    ["y", "c", "label", "labels", "class", "classes", "kind", "kinds", "onehot", "one_hot", "cond", "condition"]
-        .contains(&n.as_str())
+    [
+        "y",
+        "c",
+        "label",
+        "labels",
+        "class",
+        "classes",
+        "kind",
+        "kinds",
+        "onehot",
+        "one_hot",
+        "cond",
+        "condition",
+    ]
+    .contains(&n.as_str())
         || ["label", "class", "onehot", "one_hot", "cond"].iter().any(|k| n.contains(k))
 }
 
 fn all_names(inputs: &[InputDesc]) -> String {
-    inputs.iter().map(|i| format!("`{}` {} {}", i.name, crate::model::dtype_name(i.elem), shape_text(i))).collect::<Vec<_>>().join(", ")
+    inputs
+        .iter()
+        .map(|i| format!("`{}` {} {}", i.name, crate::model::dtype_name(i.elem), shape_text(i)))
+        .collect::<Vec<_>>()
+        .join(", ")
 }
 
 /// Finds the latent, label and output names and the batch kind from the ONNX graph.
 pub(crate) fn discover_inputs(graph: &pb::GraphProto, ov: &SignatureOverrides) -> Result<FoundInputs> {
     let init: std::collections::HashSet<&str> = graph.initializer.iter().map(|t| t.name.as_str()).collect();
-    let inputs: Vec<InputDesc> = graph.input.iter().filter(|i| !init.contains(i.name.as_str())).map(describe).collect();
+    let inputs: Vec<InputDesc> =
+        graph.input.iter().filter(|i| !init.contains(i.name.as_str())).map(describe).collect();
     if inputs.is_empty() {
-        return Err(Error::Signature { reason: "the model has no inputs; a generator needs a latent input".into() });
+        return Err(Error::Signature {
+            reason: "the model has no inputs; a generator needs a latent input".into(),
+        });
     }
     let by_name = |n: &str| inputs.iter().find(|i| i.name == n).cloned();
     let unknown = |what: &str, n: &str| Error::Signature {
@@ -321,7 +344,11 @@ pub(crate) fn discover_inputs(graph: &pb::GraphProto, ov: &SignatureOverrides) -
     } else {
         let floats: Vec<&InputDesc> = inputs
             .iter()
-            .filter(|i| is_float(i.elem) && (i.dims.len() == 2 || i.dims.len() == 4) && ov.label_input.as_deref() != Some(&i.name))
+            .filter(|i| {
+                is_float(i.elem)
+                    && (i.dims.len() == 2 || i.dims.len() == 4)
+                    && ov.label_input.as_deref() != Some(&i.name)
+            })
             .collect();
         match floats.as_slice() {
             [one] => (*one).clone(),
@@ -329,7 +356,13 @@ pub(crate) fn discover_inputs(graph: &pb::GraphProto, ov: &SignatureOverrides) -
                 let hint = inputs
                     .iter()
                     .find(|i| i.dims.len() == 2 || i.dims.len() == 4)
-                    .map(|i| format!("; input `{}` has the shape of a latent but is {}, expected float32", i.name, crate::model::dtype_name(i.elem)))
+                    .map(|i| {
+                        format!(
+                            "; input `{}` has the shape of a latent but is {}, expected float32",
+                            i.name,
+                            crate::model::dtype_name(i.elem)
+                        )
+                    })
                     .unwrap_or_default();
                 return Err(Error::Signature {
                     reason: format!(
@@ -339,7 +372,8 @@ pub(crate) fn discover_inputs(graph: &pb::GraphProto, ov: &SignatureOverrides) -
                 });
             }
             many => {
-                let named: Vec<&&InputDesc> = many.iter().filter(|i| latent_like(&i.name) && !label_like(&i.name)).collect();
+                let named: Vec<&&InputDesc> =
+                    many.iter().filter(|i| latent_like(&i.name) && !label_like(&i.name)).collect();
                 if named.len() == 1 {
                     (**named[0]).clone()
                 } else {
@@ -406,7 +440,11 @@ pub(crate) fn discover_inputs(graph: &pb::GraphProto, ov: &SignatureOverrides) -
     };
     if let Some(extra) = rest.iter().find(|i| label_desc.as_ref().is_none_or(|l| l.name != i.name)) {
         return Err(Error::Signature {
-            reason: format!("input `{}` is neither the latent nor the label; the inputs are {}", extra.name, all_names(&inputs)),
+            reason: format!(
+                "input `{}` is neither the latent nor the label; the inputs are {}",
+                extra.name,
+                all_names(&inputs)
+            ),
         });
     }
     let label = match label_desc {
@@ -431,10 +469,13 @@ pub(crate) fn discover_inputs(graph: &pb::GraphProto, ov: &SignatureOverrides) -
             [one] => one.name.clone(),
             [] => return Err(Error::Signature { reason: "the model has no outputs".into() }),
             many => {
-                let rank4: Vec<&pb::ValueInfoProto> = many.iter().filter(|o| {
-                    let d = describe(o);
-                    is_float(d.elem) && d.dims.len() == 4
-                }).collect();
+                let rank4: Vec<&pb::ValueInfoProto> = many
+                    .iter()
+                    .filter(|o| {
+                        let d = describe(o);
+                        is_float(d.elem) && d.dims.len() == 4
+                    })
+                    .collect();
                 if rank4.len() == 1 {
                     rank4[0].name.clone()
                 } else {
@@ -455,7 +496,11 @@ fn label_input(graph: &pb::GraphProto, d: &InputDesc, ov: &SignatureOverrides) -
     if matches!(d.elem, INT64 | INT32) {
         if d.dims.len() != 1 {
             return Err(Error::Signature {
-                reason: format!("label input `{}` has shape {}, expected [N] of class indices", d.name, shape_text(d)),
+                reason: format!(
+                    "label input `{}` has shape {}, expected [N] of class indices",
+                    d.name,
+                    shape_text(d)
+                ),
             });
         }
         let classes = match ov.label_classes {
@@ -473,9 +518,18 @@ fn label_input(graph: &pb::GraphProto, d: &InputDesc, ov: &SignatureOverrides) -
         Ok(LabelInput { name: d.name.clone(), kind: LabelKind::Index, classes, int32: d.elem == INT32 })
     } else if is_float(d.elem) {
         match d.dims.as_slice() {
-            [_, Some(k)] => Ok(LabelInput { name: d.name.clone(), kind: LabelKind::OneHot, classes: *k as usize, int32: false }),
+            [_, Some(k)] => Ok(LabelInput {
+                name: d.name.clone(),
+                kind: LabelKind::OneHot,
+                classes: *k as usize,
+                int32: false,
+            }),
             _ => Err(Error::Signature {
-                reason: format!("label input `{}` has shape {}, expected [N, K] one-hot rows", d.name, shape_text(d)),
+                reason: format!(
+                    "label input `{}` has shape {}, expected [N, K] one-hot rows",
+                    d.name,
+                    shape_text(d)
+                ),
             }),
         }
     } else {
@@ -491,10 +545,13 @@ fn label_input(graph: &pb::GraphProto, d: &InputDesc, ov: &SignatureOverrides) -
 
 /// Constant tensors by name: initializers and Constant nodes' values.
 fn constants(graph: &pb::GraphProto) -> HashMap<&str, &pb::TensorProto> {
-    let mut m: HashMap<&str, &pb::TensorProto> = graph.initializer.iter().map(|t| (t.name.as_str(), t)).collect();
+    let mut m: HashMap<&str, &pb::TensorProto> =
+        graph.initializer.iter().map(|t| (t.name.as_str(), t)).collect();
     for n in &graph.node {
         if n.op_type == "Constant" {
-            if let (Some(out), Some(t)) = (n.output.first(), n.attribute.iter().find(|a| a.name == "value").and_then(|a| a.t.as_ref())) {
+            if let (Some(out), Some(t)) =
+                (n.output.first(), n.attribute.iter().find(|a| a.name == "value").and_then(|a| a.t.as_ref()))
+            {
                 m.insert(out.as_str(), t);
             }
         }
@@ -650,7 +707,17 @@ fn producers(graph: &pb::GraphProto) -> HashMap<&str, &pb::NodeProto> {
     m
 }
 
-const LAYOUT_OPS: &[&str] = &["Transpose", "Reshape", "Identity", "Flatten", "Squeeze", "Unsqueeze", "DepthToSpace", "Dropout", "Cast"];
+const LAYOUT_OPS: &[&str] = &[
+    "Transpose",
+    "Reshape",
+    "Identity",
+    "Flatten",
+    "Squeeze",
+    "Unsqueeze",
+    "DepthToSpace",
+    "Dropout",
+    "Cast",
+];
 
 fn producer_chain_has_nhwc_transpose(graph: &pb::GraphProto, output: &str) -> bool {
     let prod = producers(graph);
@@ -658,10 +725,13 @@ fn producer_chain_has_nhwc_transpose(graph: &pb::GraphProto, output: &str) -> bo
     for _ in 0..16 {
         let Some(n) = prod.get(cur) else { return false };
         if n.op_type == "Transpose" {
-            let perm: Vec<i64> = n.attribute.iter().find(|a| a.name == "perm").map(|a| a.ints.clone()).unwrap_or_default();
+            let perm: Vec<i64> =
+                n.attribute.iter().find(|a| a.name == "perm").map(|a| a.ints.clone()).unwrap_or_default();
             return perm == [0, 2, 3, 1];
         }
-        if !LAYOUT_OPS.contains(&n.op_type.as_str()) && !["Mul", "Add", "Sub", "Div"].contains(&n.op_type.as_str()) {
+        if !LAYOUT_OPS.contains(&n.op_type.as_str())
+            && !["Mul", "Add", "Sub", "Div"].contains(&n.op_type.as_str())
+        {
             return false;
         }
         let Some(first) = n.input.first() else { return false };
@@ -687,7 +757,13 @@ fn discover_range(graph: &pb::GraphProto, output: &str) -> std::result::Result<(
             "Tanh" => Some((-1.0, 1.0)),
             "Sigmoid" | "HardSigmoid" => Some((0.0, 1.0)),
             "Clip" => {
-                let get = |i: usize| n.input.get(i).filter(|s| !s.is_empty()).and_then(|s| consts.get(s.as_str())).and_then(|t| scalar(t));
+                let get = |i: usize| {
+                    n.input
+                        .get(i)
+                        .filter(|s| !s.is_empty())
+                        .and_then(|s| consts.get(s.as_str()))
+                        .and_then(|t| scalar(t))
+                };
                 match (get(1), get(2)) {
                     (Some(lo), Some(hi)) if lo < hi => Some((lo, hi)),
                     _ => return Err("Clip without constant bounds".into()),
@@ -701,7 +777,8 @@ fn discover_range(graph: &pb::GraphProto, output: &str) -> std::result::Result<(
             let (lo, hi) = if a <= b { (a, b) } else { (b, a) };
             steps.push(op.to_string());
             steps.reverse();
-            let r = ValueRange::new(lo as f32, hi as f32).map_err(|_| format!("{op} mapped to an empty range"))?;
+            let r = ValueRange::new(lo as f32, hi as f32)
+                .map_err(|_| format!("{op} mapped to an empty range"))?;
             return Ok((r, steps.join(" -> ")));
         }
         if LAYOUT_OPS.contains(&op) {

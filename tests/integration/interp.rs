@@ -25,7 +25,11 @@ fn interpolation_matches_numpy_reference() {
             let s = slerp(&a, &b, t).unwrap();
             for j in 0..dim {
                 let (wl, ws) = (want_lerp[r * dim + j], want_slerp[r * dim + j]);
-                assert!((f64::from(l[j]) - wl).abs() <= 1e-6 * (1.0 + wl.abs()), "{} lerp t={t} [{j}]", c["name"]);
+                assert!(
+                    (f64::from(l[j]) - wl).abs() <= 1e-6 * (1.0 + wl.abs()),
+                    "{} lerp t={t} [{j}]",
+                    c["name"]
+                );
                 assert!(
                     (f64::from(s[j]) - ws).abs() <= 2e-5 * (1.0 + ws.abs()),
                     "{} ({}) slerp t={t} [{j}]: {} vs {ws}",

@@ -33,7 +33,10 @@ fn sniffing_names_what_the_bytes_are() {
             x as u8
         })
         .collect();
-    assert!(matches!(load_bytes(&noise), Error::NotOnnx { .. } | Error::Graph { .. } | Error::Signature { .. }));
+    assert!(matches!(
+        load_bytes(&noise),
+        Error::NotOnnx { .. } | Error::Graph { .. } | Error::Signature { .. }
+    ));
 }
 
 #[test]
@@ -45,7 +48,14 @@ fn truncated_models_are_refused_cleanly() {
         // Every cut point gives an error with a message; none panics.
         assert!(!e.to_string().is_empty());
         assert!(
-            matches!(e, Error::NotOnnx { .. } | Error::TensorSize { .. } | Error::Graph { .. } | Error::Signature { .. } | Error::Tract { .. }),
+            matches!(
+                e,
+                Error::NotOnnx { .. }
+                    | Error::TensorSize { .. }
+                    | Error::Graph { .. }
+                    | Error::Signature { .. }
+                    | Error::Tract { .. }
+            ),
             "cut at {cut}: {e:?}"
         );
     }
@@ -62,11 +72,17 @@ fn external_data_rules() {
     assert!(matches!(e, Error::ExternalDataNeedsPath { .. }), "{e}");
     assert!(e.to_string().contains("genloom convert"), "{e}");
     let e = Model::from_path(golden("models/external-escape.onnx"), &LoadOptions::default()).unwrap_err();
-    assert!(matches!(e, Error::ExternalDataLocation { .. }) && e.to_string().contains("`../escape.bin`"), "{e}");
+    assert!(
+        matches!(e, Error::ExternalDataLocation { .. }) && e.to_string().contains("`../escape.bin`"),
+        "{e}"
+    );
     let e = Model::from_path(golden("models/external-absolute.onnx"), &LoadOptions::default()).unwrap_err();
     assert!(matches!(e, Error::ExternalDataLocation { .. }) && e.to_string().contains("absolute"), "{e}");
     let e = Model::from_path(golden("models/external-missing.onnx"), &LoadOptions::default()).unwrap_err();
-    assert!(matches!(e, Error::ExternalDataMissing { .. }) && e.to_string().contains("missing.onnx.data"), "{e}");
+    assert!(
+        matches!(e, Error::ExternalDataMissing { .. }) && e.to_string().contains("missing.onnx.data"),
+        "{e}"
+    );
 }
 
 #[cfg(unix)]

@@ -2,6 +2,8 @@
 //! reference evaluator, PyTorch (through committed goldens), Pillow, and published test vectors.
 //! Golden data is made by `tests/golden/make_goldens.py` and `models-demo/make_reference.py`.
 
+#![allow(clippy::unwrap_used)] // tests panic on failure by design
+
 mod demo_models;
 mod interp;
 mod load_errors;

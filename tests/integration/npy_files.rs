@@ -28,20 +28,28 @@ fn numpy_written_files_load_or_are_refused_by_name() {
             continue;
         }
         let a = result.unwrap_or_else(|e| panic!("{name}: {e}"));
-        let shape: Vec<usize> = f["shape"].as_array().unwrap().iter().map(|v| v.as_u64().unwrap() as usize).collect();
+        let shape: Vec<usize> =
+            f["shape"].as_array().unwrap().iter().map(|v| v.as_u64().unwrap() as usize).collect();
         assert_eq!(a.shape, shape, "{name}");
         let values = &f["values"];
         match (&a.data, f["value_encoding"].as_str().unwrap_or("")) {
             (NpyData::F32(v), "f32-bits-hex") => {
                 let want = hex_f32s(values);
-                assert!(v.iter().zip(&want).all(|(x, y)| x.to_bits() == y.to_bits()) && v.len() == want.len(), "{name}");
+                assert!(
+                    v.iter().zip(&want).all(|(x, y)| x.to_bits() == y.to_bits()) && v.len() == want.len(),
+                    "{name}"
+                );
             }
             (NpyData::F64(v), "f64-bits-hex") => {
                 let want = hex_f64s(values);
-                assert!(v.iter().zip(&want).all(|(x, y)| x.to_bits() == y.to_bits()) && v.len() == want.len(), "{name}");
+                assert!(
+                    v.iter().zip(&want).all(|(x, y)| x.to_bits() == y.to_bits()) && v.len() == want.len(),
+                    "{name}"
+                );
             }
             (data, "decimal-string") => {
-                let want: Vec<i64> = values.as_array().unwrap().iter().map(|v| v.as_str().unwrap().parse().unwrap()).collect();
+                let want: Vec<i64> =
+                    values.as_array().unwrap().iter().map(|v| v.as_str().unwrap().parse().unwrap()).collect();
                 let got: Vec<i64> = match data {
                     NpyData::I64(v) => v.clone(),
                     NpyData::I32(v) => v.iter().map(|&x| i64::from(x)).collect(),

@@ -16,11 +16,17 @@ fn pattern(w: usize, h: usize, format: PixelFormat, salt: usize) -> Pixels {
 fn png_pixels_survive_pillow() {
     // Judge: Pillow's PNG decoder (tests/py/verify.py checks every chunk CRC, mode and bytes).
     let dir = tempfile::tempdir().unwrap();
-    for (format, mode) in [(PixelFormat::Gray8, "L"), (PixelFormat::Rgb8, "RGB"), (PixelFormat::Rgba8, "RGBA")] {
+    for (format, mode) in
+        [(PixelFormat::Gray8, "L"), (PixelFormat::Rgb8, "RGB"), (PixelFormat::Rgba8, "RGBA")]
+    {
         let p = pattern(7, 5, format, 1);
         let path = dir.path().join(format!("{mode}.png"));
         p.write_png(&path).unwrap();
-        verify_with_python("png", &path, &serde_json::json!({"mode": mode, "width": 7, "height": 5, "pixels_hex": hex(&p.data)}));
+        verify_with_python(
+            "png",
+            &path,
+            &serde_json::json!({"mode": mode, "width": 7, "height": 5, "pixels_hex": hex(&p.data)}),
+        );
     }
     let tiles: Vec<Pixels> = (0..5).map(|i| pattern(4, 4, PixelFormat::Rgb8, i)).collect();
     let mut o = GridOptions::default();
@@ -30,7 +36,11 @@ fn png_pixels_survive_pillow() {
     assert_eq!((g.width, g.height), (3 * 8 + 4 * 3, 2 * 8 + 3 * 3));
     let path = dir.path().join("grid.png");
     g.write_png(&path).unwrap();
-    verify_with_python("png", &path, &serde_json::json!({"mode": "RGB", "width": g.width, "height": g.height, "pixels_hex": hex(&g.data)}));
+    verify_with_python(
+        "png",
+        &path,
+        &serde_json::json!({"mode": "RGB", "width": g.width, "height": g.height, "pixels_hex": hex(&g.data)}),
+    );
 }
 
 #[test]

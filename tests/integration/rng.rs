@@ -39,7 +39,13 @@ fn portable_latents_match_the_numpy_transcription() {
         let got = Latents::sample(dim, &o).unwrap();
         let want = hex_f32s(&c["values"]);
         let same = got.as_slice().iter().zip(&want).all(|(a, b)| a.to_bits() == b.to_bits());
-        assert!(same, "{} seed {seed} row {row} dim {dim}: {:?} vs {:?}", c["prior"], &got.as_slice()[..3], &want[..3]);
+        assert!(
+            same,
+            "{} seed {seed} row {row} dim {dim}: {:?} vs {:?}",
+            c["prior"],
+            &got.as_slice()[..3],
+            &want[..3]
+        );
     }
 }
 
@@ -55,7 +61,8 @@ fn numpy_mode_matches_randomstate() {
     let (mut checked, mut values, mut last_bit) = (0, 0usize, 0usize);
     for c in g["cases"].as_array().unwrap() {
         let seed = c["seed"].as_u64().unwrap() as u32;
-        let shape: Vec<usize> = c["shape"].as_array().unwrap().iter().map(|v| v.as_u64().unwrap() as usize).collect();
+        let shape: Vec<usize> =
+            c["shape"].as_array().unwrap().iter().map(|v| v.as_u64().unwrap() as usize).collect();
         let n: usize = shape.iter().product();
         let want = hex_f64s(&c["values"]);
         let mut mt = Mt19937::new(seed);
@@ -82,7 +89,10 @@ fn numpy_mode_matches_randomstate() {
             o.mode = RngMode::NumpyCompatible;
             let l = Latents::sample(shape[1], &o).unwrap();
             let cast: Vec<f32> = want.iter().map(|&v| v as f32).collect();
-            assert!(l.as_slice().iter().zip(&cast).all(|(a, b)| a.to_bits() == b.to_bits()), "seed {seed} {shape:?}");
+            assert!(
+                l.as_slice().iter().zip(&cast).all(|(a, b)| a.to_bits() == b.to_bits()),
+                "seed {seed} {shape:?}"
+            );
         }
         checked += 1;
     }

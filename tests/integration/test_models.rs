@@ -10,7 +10,10 @@ fn manifest() -> Vec<serde_json::Value> {
 }
 
 fn ok_models() -> Vec<serde_json::Value> {
-    manifest().into_iter().filter(|m| m["expect"] == "ok" || m["expect"].as_str().unwrap_or("").starts_with("refuse-or-trust")).collect()
+    manifest()
+        .into_iter()
+        .filter(|m| m["expect"] == "ok" || m["expect"].as_str().unwrap_or("").starts_with("refuse-or-trust"))
+        .collect()
 }
 
 fn generator(m: &Model, micro_batch: usize, threads: usize) -> Generator {
@@ -38,8 +41,11 @@ fn labels_of(m: &serde_json::Value) -> Option<Vec<i64>> {
 fn signatures_match_the_manifest() {
     for m in ok_models() {
         let name = m["name"].as_str().unwrap();
-        let model = Model::from_path(golden(&format!("models/{}", m["file"].as_str().unwrap())), &LoadOptions::default())
-            .unwrap_or_else(|e| panic!("{name}: {e}"));
+        let model = Model::from_path(
+            golden(&format!("models/{}", m["file"].as_str().unwrap())),
+            &LoadOptions::default(),
+        )
+        .unwrap_or_else(|e| panic!("{name}: {e}"));
         let sig = model.signature();
         assert_eq!(sig.latent.dim as u64, m["latent_dim"].as_u64().unwrap(), "{name}");
         assert_eq!(sig.latent.name, m["inputs"][0]["name"].as_str().unwrap(), "{name}");
@@ -47,12 +53,17 @@ fn signatures_match_the_manifest() {
         assert_eq!(sig.image.name, out["name"].as_str().unwrap(), "{name}");
         assert_eq!(sig.image.layout.to_string(), out["layout"].as_str().unwrap(), "{name}");
         // True shape (the wrong-declared-output model declares 16x16; tract infers 8x8).
-        let shape: Vec<u64> = out["shape"].as_array().unwrap()[1..].iter().map(|v| v.as_u64().unwrap()).collect();
+        let shape: Vec<u64> =
+            out["shape"].as_array().unwrap()[1..].iter().map(|v| v.as_u64().unwrap()).collect();
         let (c, h, w) = match sig.image.layout {
             genloom::Layout::Nchw => (shape[0], shape[1], shape[2]),
             genloom::Layout::Nhwc => (shape[2], shape[0], shape[1]),
         };
-        assert_eq!((sig.image.channels as u64, sig.image.height as u64, sig.image.width as u64), (c, h, w), "{name}");
+        assert_eq!(
+            (sig.image.channels as u64, sig.image.height as u64, sig.image.width as u64),
+            (c, h, w),
+            "{name}"
+        );
         let range = match out["range"].as_str().unwrap() {
             "[-1,1]" => genloom::ValueRange::TANH,
             "[0,1]" => genloom::ValueRange::SIGMOID,
@@ -64,8 +75,16 @@ fn signatures_match_the_manifest() {
         assert_eq!(sig.batch, fixed.map_or(Batch::Symbolic, |n| Batch::Fixed(n as usize)), "{name}");
         match (m["conditioning"].as_str(), &sig.label) {
             (None, None) => {}
-            (Some("index"), Some(l)) => assert_eq!((l.kind, l.classes as u64), (LabelKind::Index, m["classes"].as_u64().unwrap()), "{name}"),
-            (Some("onehot"), Some(l)) => assert_eq!((l.kind, l.classes as u64), (LabelKind::OneHot, m["classes"].as_u64().unwrap()), "{name}"),
+            (Some("index"), Some(l)) => assert_eq!(
+                (l.kind, l.classes as u64),
+                (LabelKind::Index, m["classes"].as_u64().unwrap()),
+                "{name}"
+            ),
+            (Some("onehot"), Some(l)) => assert_eq!(
+                (l.kind, l.classes as u64),
+                (LabelKind::OneHot, m["classes"].as_u64().unwrap()),
+                "{name}"
+            ),
             (c, l) => panic!("{name}: conditioning {c:?} vs {l:?}"),
         }
         let info = model.info();
@@ -84,9 +103,14 @@ fn outputs_match_the_onnx_reference_evaluator() {
     for m in ok_models() {
         let Some(refname) = m["onnxref"].as_str() else { continue };
         let name = m["name"].as_str().unwrap();
-        let model = Model::from_path(golden(&format!("models/{}", m["file"].as_str().unwrap())), &LoadOptions::default()).unwrap();
+        let model = Model::from_path(
+            golden(&format!("models/{}", m["file"].as_str().unwrap())),
+            &LoadOptions::default(),
+        )
+        .unwrap();
         let dim = model.signature().latent.dim;
-        let latents = npy::read_latents(&golden(&format!("models/{}", m["latents"].as_str().unwrap())), dim).unwrap();
+        let latents =
+            npy::read_latents(&golden(&format!("models/{}", m["latents"].as_str().unwrap())), dim).unwrap();
         let labels = labels_of(&m);
         let want = NpyArray::read(&golden(&format!("models/{refname}"))).unwrap();
         let NpyData::F32(want) = want.data else { panic!("{name}: reference is not f32") };
@@ -95,7 +119,10 @@ fn outputs_match_the_onnx_reference_evaluator() {
             let images = g.generate(&latents, labels.as_deref()).unwrap();
             assert_eq!(images.data.len(), want.len(), "{name}");
             for (i, (a, b)) in images.data.iter().zip(&want).enumerate() {
-                assert!((a - b).abs() <= 1e-4 * b.abs().max(1.0), "{name} mb {mb}: value {i}: {a} vs reference {b}");
+                assert!(
+                    (a - b).abs() <= 1e-4 * b.abs().max(1.0),
+                    "{name} mb {mb}: value {i}: {a} vs reference {b}"
+                );
             }
         }
         checked += 1;
@@ -107,10 +134,15 @@ fn outputs_match_the_onnx_reference_evaluator() {
 fn image_i_does_not_depend_on_the_rest_of_the_request() {
     for m in ok_models() {
         let name = m["name"].as_str().unwrap();
-        let model = Model::from_path(golden(&format!("models/{}", m["file"].as_str().unwrap())), &LoadOptions::default()).unwrap();
+        let model = Model::from_path(
+            golden(&format!("models/{}", m["file"].as_str().unwrap())),
+            &LoadOptions::default(),
+        )
+        .unwrap();
         let sig = model.signature().clone();
         let latents = Latents::sample(sig.latent.dim, &genloom::SampleOptions::new(5, 11)).unwrap();
-        let labels: Option<Vec<i64>> = sig.label.as_ref().map(|l| (0..11).map(|i| (i % l.classes) as i64).collect());
+        let labels: Option<Vec<i64>> =
+            sig.label.as_ref().map(|l| (0..11).map(|i| (i % l.classes) as i64).collect());
         let whole = generator(&model, 11, 1).generate(&latents, labels.as_deref()).unwrap();
         for mb in [1, 3, 4] {
             let part = generator(&model, mb, 2).generate(&latents, labels.as_deref()).unwrap();

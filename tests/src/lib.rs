@@ -21,7 +21,8 @@ pub fn demo(rel: &str) -> PathBuf {
 
 /// Reads and parses a JSON file.
 pub fn json(path: &Path) -> serde_json::Value {
-    let text = std::fs::read_to_string(path).unwrap_or_else(|e| panic!("cannot read {}: {e}", path.display()));
+    let text =
+        std::fs::read_to_string(path).unwrap_or_else(|e| panic!("cannot read {}: {e}", path.display()));
     serde_json::from_str(&text).unwrap_or_else(|e| panic!("{} is not JSON: {e}", path.display()))
 }
 
@@ -62,13 +63,10 @@ pub fn verify_with_python(kind: &str, file: &Path, expect: &serde_json::Value) {
     let exp = dir.path().join("expect.json");
     std::fs::write(&exp, serde_json::to_vec(expect).expect("json")).expect("write expect");
     let script = root().join("tests").join("py").join("verify.py");
-    let out = Command::new(python())
-        .arg(&script)
-        .arg(kind)
-        .arg(file)
-        .arg(&exp)
-        .output()
-        .unwrap_or_else(|e| panic!("cannot run {} (install Python 3 with tests/requirements.txt): {e}", python()));
+    let out =
+        Command::new(python()).arg(&script).arg(kind).arg(file).arg(&exp).output().unwrap_or_else(|e| {
+            panic!("cannot run {} (install Python 3 with tests/requirements.txt): {e}", python())
+        });
     assert!(
         out.status.success(),
         "{kind} verification of {} failed ({}): {}{}",
@@ -84,4 +82,3 @@ pub fn max_abs_diff(a: &[f32], b: &[f32]) -> f32 {
     assert_eq!(a.len(), b.len(), "length differs");
     a.iter().zip(b).map(|(x, y)| (x - y).abs()).fold(0.0, f32::max)
 }
-

@@ -23,7 +23,11 @@ pub struct Failure {
 impl<E: Into<anyhow::Error>> From<E> for Failure {
     fn from(e: E) -> Failure {
         let error: anyhow::Error = e.into();
-        let code = error.chain().find_map(|c| c.downcast_ref::<genloom::Error>()).map(exit_code).unwrap_or(EXIT_FAILED);
+        let code = error
+            .chain()
+            .find_map(|c| c.downcast_ref::<genloom::Error>())
+            .map(exit_code)
+            .unwrap_or(EXIT_FAILED);
         Failure { code, error }
     }
 }
@@ -32,9 +36,10 @@ impl<E: Into<anyhow::Error>> From<E> for Failure {
 pub fn exit_code(e: &genloom::Error) -> i32 {
     match e {
         genloom::Error::Io { action, .. } if action == "read" || action == "open the folder" => EXIT_USAGE,
-        genloom::Error::Io { .. } | genloom::Error::Image { .. } | genloom::Error::Output { .. } | genloom::Error::Cancelled { .. } => {
-            EXIT_FAILED
-        }
+        genloom::Error::Io { .. }
+        | genloom::Error::Image { .. }
+        | genloom::Error::Output { .. }
+        | genloom::Error::Cancelled { .. } => EXIT_FAILED,
         genloom::Error::Tract { action, .. } if action.starts_with("run") => EXIT_FAILED,
         _ => EXIT_USAGE,
     }
@@ -101,7 +106,10 @@ impl ModelArgs {
             Some(p) => Model::from_path(p, &options),
             None => Model::from_bytes(genloom::demo::TILES_ONNX, &options),
         }
-        .map_err(|e| Failure { code: exit_code(&e), error: anyhow::Error::new(e).context(format!("cannot load {}", self.display_name())) })?;
+        .map_err(|e| Failure {
+            code: exit_code(&e),
+            error: anyhow::Error::new(e).context(format!("cannot load {}", self.display_name())),
+        })?;
         Ok((model, t.elapsed().as_secs_f64() * 1e3))
     }
 }
@@ -135,7 +143,11 @@ pub fn parse_labels(spec: &str, count: usize, classes: usize) -> CliResult<Vec<i
         return Ok((0..count).map(|i| (i % classes) as i64).collect());
     }
     let parts: Result<Vec<i64>, _> = spec.split(',').map(|p| p.trim().parse::<i64>()).collect();
-    let parts = parts.map_err(|_| usage(format!("--label is `{spec}`, expected `cycle`, a class number, or a comma-separated list of classes")))?;
+    let parts = parts.map_err(|_| {
+        usage(format!(
+            "--label is `{spec}`, expected `cycle`, a class number, or a comma-separated list of classes"
+        ))
+    })?;
     match parts.len() {
         1 => Ok(vec![parts[0]; count]),
         n if n == count => Ok(parts),
@@ -182,8 +194,13 @@ impl Bar {
             return;
         }
         if self.bar.is_none() && self.start.elapsed().as_secs_f64() > 1.0 && done < total {
-            let b = indicatif::ProgressBar::with_draw_target(Some(total as u64), indicatif::ProgressDrawTarget::stderr());
-            if let Ok(style) = indicatif::ProgressStyle::with_template("{msg} [{bar:30}] {pos}/{len} ({eta} left)") {
+            let b = indicatif::ProgressBar::with_draw_target(
+                Some(total as u64),
+                indicatif::ProgressDrawTarget::stderr(),
+            );
+            if let Ok(style) =
+                indicatif::ProgressStyle::with_template("{msg} [{bar:30}] {pos}/{len} ({eta} left)")
+            {
                 b.set_style(style.progress_chars("=> "));
             }
             b.set_message(self.label);
@@ -210,7 +227,8 @@ pub fn is_folder_target(p: &Path) -> bool {
 pub fn ensure_parent(p: &Path) -> CliResult {
     if let Some(parent) = p.parent() {
         if !parent.as_os_str().is_empty() && !parent.exists() {
-            std::fs::create_dir_all(parent).with_context(|| format!("cannot create folder {}", parent.display()))?;
+            std::fs::create_dir_all(parent)
+                .with_context(|| format!("cannot create folder {}", parent.display()))?;
         }
     }
     Ok(())

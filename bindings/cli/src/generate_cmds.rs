@@ -1,6 +1,8 @@
 //! `genloom sample` and `genloom morph`.
 
-use crate::common::{ensure_parent, is_folder_target, out, out_json, parse_labels, usage, Bar, CliResult, ModelArgs, RunArgs};
+use crate::common::{
+    ensure_parent, is_folder_target, out, out_json, parse_labels, usage, Bar, CliResult, ModelArgs, RunArgs,
+};
 use anyhow::Context;
 use clap::Args;
 use genloom::pixels::{self, GifOptions, GridOptions, PixelFormat, PixelStats, Pixels};
@@ -99,7 +101,12 @@ struct SampleReport {
     corrections: PixelStats,
 }
 
-fn run_with_bar(g: &Generator, latents: &Latents, labels: Option<&[i64]>, json: bool) -> CliResult<(Images, f64)> {
+fn run_with_bar(
+    g: &Generator,
+    latents: &Latents,
+    labels: Option<&[i64]>,
+    json: bool,
+) -> CliResult<(Images, f64)> {
     let mut bar = Bar::new("generating", !json && std::io::stderr().is_terminal());
     let t = Instant::now();
     let images = g.generate_with(latents, labels, &mut |p| {
@@ -110,26 +117,43 @@ fn run_with_bar(g: &Generator, latents: &Latents, labels: Option<&[i64]>, json: 
     Ok((images, t.elapsed().as_secs_f64() * 1e3))
 }
 
-fn labels_for(g: &Generator, spec: Option<&str>, file: Option<&Path>, count: usize) -> CliResult<Option<Vec<i64>>> {
+fn labels_for(
+    g: &Generator,
+    spec: Option<&str>,
+    file: Option<&Path>,
+    count: usize,
+) -> CliResult<Option<Vec<i64>>> {
     match (&g.signature().label, spec, file) {
         (None, None, None) => Ok(None),
-        (None, _, _) => Err(usage("this model is unconditional (it has no label input): drop --label / --labels-in")),
+        (None, _, _) => {
+            Err(usage("this model is unconditional (it has no label input): drop --label / --labels-in"))
+        }
         (Some(_), Some(_), Some(_)) => Err(usage("give --label or --labels-in, not both")),
         (Some(l), spec, None) => Ok(Some(parse_labels(spec.unwrap_or("cycle"), count, l.classes)?)),
         (Some(_), None, Some(f)) => {
             let labels = genloom::npy::read_labels(f)?;
             if labels.len() != count {
-                return Err(usage(format!("{} holds {} labels for {count} images, expected one per image", f.display(), labels.len())));
+                return Err(usage(format!(
+                    "{} holds {} labels for {count} images, expected one per image",
+                    f.display(),
+                    labels.len()
+                )));
             }
             Ok(Some(labels))
         }
     }
 }
 
-fn write_outputs(out_path: &Path, tiles: &[Pixels], grid: &GridOptions, prefix: &str) -> CliResult<Vec<String>> {
+fn write_outputs(
+    out_path: &Path,
+    tiles: &[Pixels],
+    grid: &GridOptions,
+    prefix: &str,
+) -> CliResult<Vec<String>> {
     let mut files = vec![];
     if is_folder_target(out_path) {
-        std::fs::create_dir_all(out_path).with_context(|| format!("cannot create folder {}", out_path.display()))?;
+        std::fs::create_dir_all(out_path)
+            .with_context(|| format!("cannot create folder {}", out_path.display()))?;
         for (i, t) in tiles.iter().enumerate() {
             let p = out_path.join(format!("{prefix}-{i:04}.png"));
             t.upscale(grid.scale).write_png(&p)?;
@@ -138,7 +162,12 @@ fn write_outputs(out_path: &Path, tiles: &[Pixels], grid: &GridOptions, prefix: 
     } else {
         match out_path.extension().and_then(|e| e.to_str()).map(str::to_ascii_lowercase).as_deref() {
             Some("png") => {}
-            _ => return Err(usage(format!("--out is {}, expected a .png file or a folder", out_path.display()))),
+            _ => {
+                return Err(usage(format!(
+                    "--out is {}, expected a .png file or a folder",
+                    out_path.display()
+                )))
+            }
         }
         ensure_parent(out_path)?;
         pixels::grid(tiles, grid)?.write_png(out_path)?;
@@ -191,7 +220,11 @@ pub fn sample(a: &SampleArgs) -> CliResult {
     if a.json {
         return out_json(&report);
     }
-    let target = if files.len() == 1 { files[0].clone() } else { format!("{} files in {}", files.len(), a.out.display()) };
+    let target = if files.len() == 1 {
+        files[0].clone()
+    } else {
+        format!("{} files in {}", files.len(), a.out.display())
+    };
     let mut s = format!(
         "wrote {count} images of {}x{} to {target}\n  load {load_ms:.1} ms, plans {plan_ms:.1} ms, generate {generate_ms:.1} ms ({:.3} ms per image)\n",
         images.width,
@@ -275,7 +308,10 @@ struct MorphReport {
 pub fn morph(a: &MorphArgs) -> CliResult {
     let ext = a.out.extension().and_then(|e| e.to_str()).map(str::to_ascii_lowercase);
     if !matches!(ext.as_deref(), Some("gif") | Some("png")) {
-        return Err(usage(format!("--out is {}, expected a .gif animation or a .png strip", a.out.display())));
+        return Err(usage(format!(
+            "--out is {}, expected a .gif animation or a .png strip",
+            a.out.display()
+        )));
     }
     let interpolation: Interpolation = a.interp.parse()?;
     let (model, _) = a.model.load()?;
@@ -284,7 +320,9 @@ pub fn morph(a: &MorphArgs) -> CliResult {
         Some(f) => (genloom::npy::read_latents(f, dim)?, None),
         None => {
             let seeds: Result<Vec<u64>, _> = a.seeds.split(',').map(|s| s.trim().parse::<u64>()).collect();
-            let seeds = seeds.map_err(|_| usage(format!("--seeds is `{}`, expected comma-separated seeds like 1,2,3", a.seeds)))?;
+            let seeds = seeds.map_err(|_| {
+                usage(format!("--seeds is `{}`, expected comma-separated seeds like 1,2,3", a.seeds))
+            })?;
             let mut data = Vec::with_capacity(seeds.len() * dim);
             for &s in &seeds {
                 data.extend(Latents::sample(dim, &a.latent.options(s, 1)?)?.into_vec());
@@ -300,7 +338,9 @@ pub fn morph(a: &MorphArgs) -> CliResult {
     let (g, _) = a.run.generator(model)?;
     let labels = match (&g.signature().label, a.label) {
         (None, None) => None,
-        (None, Some(_)) => return Err(usage("this model is unconditional (it has no label input): drop --label")),
+        (None, Some(_)) => {
+            return Err(usage("this model is unconditional (it has no label input): drop --label"))
+        }
         (Some(_), l) => Some(vec![l.unwrap_or(0); frames.count()]),
     };
     let (images, generate_ms) = run_with_bar(&g, &frames, labels.as_deref(), a.json)?;

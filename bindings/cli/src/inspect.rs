@@ -37,7 +37,7 @@ fn grouped(n: u64) -> String {
     let s = n.to_string();
     let mut out = String::new();
     for (i, c) in s.chars().enumerate() {
-        if i > 0 && (s.len() - i) % 3 == 0 {
+        if i > 0 && (s.len() - i).is_multiple_of(3) {
             out.push(',');
         }
         out.push(c);
@@ -68,8 +68,16 @@ pub fn run(args: &InspectArgs) -> CliResult {
         Some(l) => line(
             "label",
             match l.kind {
-                LabelKind::Index => format!("`{}` {} [N], {} classes (0..{})", l.name, if l.int32 { "int32" } else { "int64" }, l.classes, l.classes - 1),
-                LabelKind::OneHot => format!("`{}` float32 one-hot [N, {}], {} classes", l.name, l.classes, l.classes),
+                LabelKind::Index => format!(
+                    "`{}` {} [N], {} classes (0..{})",
+                    l.name,
+                    if l.int32 { "int32" } else { "int64" },
+                    l.classes,
+                    l.classes - 1
+                ),
+                LabelKind::OneHot => {
+                    format!("`{}` float32 one-hot [N, {}], {} classes", l.name, l.classes, l.classes)
+                }
             },
         ),
     }
@@ -86,7 +94,10 @@ pub fn run(args: &InspectArgs) -> CliResult {
     };
     line("range", format!("{} ({source})", img.range));
     line("batch", batch);
-    line("parameters", format!("{} ({} of weights)", grouped(info.parameters), human_bytes(info.weight_bytes)));
+    line(
+        "parameters",
+        format!("{} ({} of weights)", grouped(info.parameters), human_bytes(info.weight_bytes)),
+    );
     line(
         "compute",
         match info.macs_per_sample {
@@ -94,8 +105,28 @@ pub fn run(args: &InspectArgs) -> CliResult {
             None => "unknown (some shapes could not be inferred)".into(),
         },
     );
-    line("file", format!("{} ({}), sha256 {}", human_bytes(info.file_bytes), if info.external_data.is_empty() { "single file".to_string() } else { format!("external data: {}", info.external_data.join(", ")) }, &info.sha256[..16]));
-    line("format", format!("ONNX IR {}, opset {}, made by {}", info.ir_version, info.opset, if info.producer.is_empty() { "an unnamed producer" } else { &info.producer }));
+    line(
+        "file",
+        format!(
+            "{} ({}), sha256 {}",
+            human_bytes(info.file_bytes),
+            if info.external_data.is_empty() {
+                "single file".to_string()
+            } else {
+                format!("external data: {}", info.external_data.join(", "))
+            },
+            &info.sha256[..16]
+        ),
+    );
+    line(
+        "format",
+        format!(
+            "ONNX IR {}, opset {}, made by {}",
+            info.ir_version,
+            info.opset,
+            if info.producer.is_empty() { "an unnamed producer" } else { &info.producer }
+        ),
+    );
     let ops: Vec<String> = info.ops.iter().map(|(k, v)| format!("{k} x{v}")).collect();
     line("ops", ops.join(", "));
     if !info.metadata.is_empty() {

@@ -78,7 +78,7 @@ const LN2: Dd = Dd { hi: f64::from_bits(0x3FE6_2E42_FEFA_39EF), lo: f64::from_bi
 /// The natural logarithm of a positive, finite `x`, correctly rounded (barring cases within
 /// about 2^-100 relative of a rounding boundary). Other inputs follow `libm::log`.
 pub(crate) fn ln(x: f64) -> f64 {
-    if !(x > 0.0) || !x.is_finite() {
+    if x.is_nan() || x <= 0.0 || x.is_infinite() {
         return libm::log(x);
     }
     let (mut x, mut k) = (x, 0i64);

@@ -146,11 +146,7 @@ impl SampleOptions {
         }
         if let Some(centre) = &self.centre {
             if centre.len() != dim {
-                return Err(Error::LatentDim {
-                    name: "centre".into(),
-                    actual: centre.len(),
-                    expected: dim,
-                });
+                return Err(Error::LatentDim { name: "centre".into(), actual: centre.len(), expected: dim });
             }
             check_finite(centre, dim)?;
         }
@@ -182,7 +178,7 @@ impl Latents {
         if dim == 0 {
             return Err(Error::invalid("latent size", 0, "at least 1"));
         }
-        if data.is_empty() || data.len() % dim != 0 {
+        if data.is_empty() || !data.len().is_multiple_of(dim) {
             return Err(Error::invalid(
                 "latent values",
                 format!("{} values", data.len()),

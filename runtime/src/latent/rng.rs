@@ -133,9 +133,7 @@ impl Mt19937 {
         let mut mt = Box::new([0u32; 624]);
         mt[0] = seed;
         for i in 1..624 {
-            mt[i] = 1_812_433_253u32
-                .wrapping_mul(mt[i - 1] ^ (mt[i - 1] >> 30))
-                .wrapping_add(i as u32);
+            mt[i] = 1_812_433_253u32.wrapping_mul(mt[i - 1] ^ (mt[i - 1] >> 30)).wrapping_add(i as u32);
         }
         Mt19937 { mt, index: 624, gauss: None }
     }

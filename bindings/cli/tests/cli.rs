@@ -1,0 +1,203 @@
+//! The `genloom` command as its users run it: outputs, JSON, exit codes, messages.
+#![allow(clippy::unwrap_used)] // tests panic on failure by design
+
+use std::path::Path;
+use std::process::{Command, Output};
+
+fn genloom(args: &[&str], dir: &Path) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_genloom")).args(args).current_dir(dir).output().expect("run genloom")
+}
+
+fn text(b: &[u8]) -> String {
+    String::from_utf8_lossy(b).into_owned()
+}
+
+fn demo(rel: &str) -> String {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("../../models-demo").join(rel).display().to_string()
+}
+
+fn golden(rel: &str) -> String {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("../../tests/golden").join(rel).display().to_string()
+}
+
+#[test]
+fn inspect_describes_the_built_in_model() {
+    let d = tempfile::tempdir().unwrap();
+    let o = genloom(&["inspect"], d.path());
+    assert!(o.status.success(), "{}", text(&o.stderr));
+    let s = text(&o.stdout);
+    for want in [
+        "`z` float32 [N, 64]",
+        "32 x 32 RGB, NCHW layout",
+        "[-1, 1] (from the graph: Tanh)",
+        "any (symbolic)",
+        "multiply-accumulates",
+    ] {
+        assert!(s.contains(want), "missing {want:?} in\n{s}");
+    }
+    let o = genloom(&["inspect", "--json"], d.path());
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["signature"]["latent"]["dim"], 64);
+    assert_eq!(v["signature"]["image"]["layout"], "NCHW");
+    assert_eq!(v["info"]["opset"], 17);
+}
+
+#[test]
+fn inspect_reads_external_data_and_test_models() {
+    let d = tempfile::tempdir().unwrap();
+    let o = genloom(&["inspect", &demo("tiles-kind-dynamo.onnx")], d.path());
+    assert!(o.status.success(), "{}", text(&o.stderr));
+    let s = text(&o.stdout);
+    assert!(s.contains("`kind` int64 [N], 4 classes"), "{s}");
+    assert!(s.contains("external data: tiles-kind-dynamo.onnx.data"), "{s}");
+    let o = genloom(&["inspect", &golden("models/nhwc-255-rgba.onnx")], d.path());
+    let s = text(&o.stdout);
+    assert!(s.contains("6 x 6 RGBA, NHWC layout") && s.contains("[0, 255]"), "{s}");
+}
+
+#[test]
+fn sample_writes_the_grid_the_library_computes() {
+    let d = tempfile::tempdir().unwrap();
+    let o = genloom(&["sample", "--count", "16", "--out", "tiles.png"], d.path());
+    assert!(o.status.success(), "{}", text(&o.stderr));
+    assert!(text(&o.stdout).contains("wrote 16 images of 32x32 to tiles.png"));
+    let png = image::open(d.path().join("tiles.png")).unwrap().to_rgb8();
+    // 4 x 4 tiles of 32 with 2-pixel margins.
+    assert_eq!(png.dimensions(), (4 * 32 + 5 * 2, 4 * 32 + 5 * 2));
+    // The same pixels as the library's own grid for seed 0.
+    let g = genloom::Generator::new(
+        genloom::Model::from_bytes(genloom::demo::TILES_ONNX, &Default::default()).unwrap(),
+        Default::default(),
+    )
+    .unwrap();
+    let l = g.sample_latents(&genloom::SampleOptions::new(0, 16)).unwrap();
+    let imgs = g.generate(&l, None).unwrap();
+    let (tiles, _) = genloom::pixels::all_pixels(&imgs, genloom::pixels::PixelFormat::Rgb8).unwrap();
+    let grid = genloom::pixels::grid(&tiles, &Default::default()).unwrap();
+    assert_eq!(png.as_raw(), &grid.data);
+}
+
+#[test]
+fn sample_folder_latents_round_trip_and_json() {
+    let d = tempfile::tempdir().unwrap();
+    let o = genloom(
+        &["sample", "-n", "3", "--seed", "5", "--out", "each", "--latents-out", "z.npy", "--json"],
+        d.path(),
+    );
+    assert!(o.status.success(), "{}", text(&o.stderr));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["files"].as_array().unwrap().len(), 3);
+    let first = std::fs::read(d.path().join("each/sample-0000.png")).unwrap();
+    let o = genloom(&["sample", "--latents-in", "z.npy", "--out", "again"], d.path());
+    assert!(o.status.success(), "{}", text(&o.stderr));
+    assert_eq!(std::fs::read(d.path().join("again/sample-0000.png")).unwrap(), first);
+}
+
+#[test]
+fn sample_conditional_numpy_and_truncation() {
+    let d = tempfile::tempdir().unwrap();
+    let m = demo("tiles-kind.onnx");
+    let o = genloom(
+        &[
+            "sample",
+            &m,
+            "-n",
+            "8",
+            "--label",
+            "cycle",
+            "--numpy",
+            "--truncation",
+            "1.0",
+            "--out",
+            "k.png",
+            "--json",
+        ],
+        d.path(),
+    );
+    assert!(o.status.success(), "{}", text(&o.stderr));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["labels"], serde_json::json!([0, 1, 2, 3, 0, 1, 2, 3]));
+}
+
+#[test]
+fn morph_writes_a_gif_and_a_strip() {
+    let d = tempfile::tempdir().unwrap();
+    let o = genloom(&["morph", "--seeds", "1,2", "--steps", "4", "--loop", "--out", "m.gif"], d.path());
+    assert!(o.status.success(), "{}", text(&o.stderr));
+    assert!(text(&o.stdout).contains("wrote 8 frames"), "{}", text(&o.stdout));
+    let gif = std::fs::read(d.path().join("m.gif")).unwrap();
+    assert!(gif.starts_with(b"GIF89a"));
+    let o = genloom(
+        &[
+            "morph",
+            "--seeds",
+            "1,2,3",
+            "--steps",
+            "2",
+            "--interp",
+            "lerp",
+            "--scale",
+            "1",
+            "--out",
+            "strip.png",
+        ],
+        d.path(),
+    );
+    assert!(o.status.success(), "{}", text(&o.stderr));
+    let strip = image::open(d.path().join("strip.png")).unwrap();
+    // 5 frames (open path: (3 - 1) * 2 + 1) in one row.
+    assert_eq!(strip.width(), 5 * 32 + 6 * 2);
+}
+
+#[test]
+fn bad_input_exits_2_with_one_line() {
+    let d = tempfile::tempdir().unwrap();
+    let cases: &[(&[&str], &str)] = &[
+        (&["inspect", "no-such.onnx"], "no-such.onnx"),
+        (&["sample", "--prior", "cauchy"], "prior is `cauchy`, expected `gaussian` or `uniform`"),
+        (&["sample", "--count", "0"], "count is 0, expected at least 1"),
+        (&["sample", "--psi", "2"], "psi is 2"),
+        (&["sample", "--label", "1"], "unconditional"),
+        (&["sample", "--out", "tiles.jpg"], "expected a .png file or a folder"),
+        (&["morph", "--seeds", "a,b"], "--seeds is `a,b`"),
+        (&["morph", "--out", "m.mp4"], "expected a .gif animation or a .png strip"),
+        (&["sample", "--range", "wide"], "range is `wide`"),
+        (&["frobnicate"], "unrecognized subcommand"),
+    ];
+    for (args, want) in cases {
+        let o = genloom(args, d.path());
+        assert_eq!(o.status.code(), Some(2), "{args:?}: {}", text(&o.stderr));
+        let err = text(&o.stderr);
+        assert!(err.contains(want), "{args:?}: {err}");
+        assert!(!err.contains("panicked"), "{args:?}: {err}");
+    }
+    // Labels out of range on a conditional model.
+    let o = genloom(&["sample", &demo("tiles-kind.onnx"), "--label", "7"], d.path());
+    assert_eq!(o.status.code(), Some(2));
+    assert!(text(&o.stderr).contains("label 0 is 7, the model has classes 0..4"), "{}", text(&o.stderr));
+    // A text file given as a model.
+    std::fs::write(d.path().join("notes.onnx"), "this is not a model\n").unwrap();
+    let o = genloom(&["inspect", "notes.onnx"], d.path());
+    assert_eq!(o.status.code(), Some(2));
+    assert_eq!(text(&o.stderr).lines().count(), 1, "{}", text(&o.stderr));
+}
+
+#[test]
+fn failed_writes_exit_1_and_leave_no_partial_file() {
+    let d = tempfile::tempdir().unwrap();
+    std::fs::write(d.path().join("blocker"), "a file where a folder should be").unwrap();
+    let o = genloom(&["sample", "-n", "2", "--out", "blocker/x.png"], d.path());
+    assert_eq!(o.status.code(), Some(1), "{}", text(&o.stderr));
+    let leftovers: Vec<_> = std::fs::read_dir(d.path()).unwrap().map(|e| e.unwrap().file_name()).collect();
+    assert_eq!(leftovers.len(), 1, "{leftovers:?}");
+}
+
+#[cfg(unix)]
+#[test]
+fn a_closed_pipe_is_a_quiet_exit() {
+    let d = tempfile::tempdir().unwrap();
+    let script = format!("set -o pipefail; '{}' inspect --json | true", env!("CARGO_BIN_EXE_genloom"));
+    let o = Command::new("bash").arg("-c").arg(script).current_dir(d.path()).output().unwrap();
+    assert!(o.status.success(), "{}", text(&o.stderr));
+    assert!(text(&o.stderr).is_empty(), "{}", text(&o.stderr));
+}
