@@ -1,0 +1,59 @@
+#!/usr/bin/env bash
+# Installs what the tests need (only what is missing) and runs every check of the workspace:
+# formatting, lints, docs, the golden data's reproducibility, and all tests.
+set -euo pipefail
+cd "$(dirname "$0")/.."
+PY=${GENLOOM_PYTHON:-python3}
+export GENLOOM_PYTHON=$PY
+start=$(date +%s)
+step() { printf '\n== %s (%ss)\n' "$*" "$(( $(date +%s) - start ))"; }
+
+step "Python packages for the outside references (tests/requirements.txt)"
+if ! "$PY" - tests/requirements.txt <<'PYEOF'
+import sys, importlib.metadata as md
+ok = True
+for line in open(sys.argv[1]):
+    line = line.split("#")[0].strip()
+    if not line:
+        continue
+    name, want = line.split("==")
+    try:
+        have = md.version(name)
+    except md.PackageNotFoundError:
+        have = None
+    if have != want:
+        print(f"  {name}: have {have}, want {want}")
+        ok = False
+sys.exit(0 if ok else 1)
+PYEOF
+then
+  "$PY" -m pip install --quiet --disable-pip-version-check -r tests/requirements.txt
+else
+  echo "  all pinned versions present"
+fi
+
+step "Rust components"
+for c in rustfmt clippy; do
+  if ! cargo "${c/rustfmt/fmt}" --version >/dev/null 2>&1; then rustup component add "$c"; fi
+done
+
+step "cargo fmt --check"
+cargo fmt --all --check
+
+step "cargo clippy (all targets, warnings are errors)"
+cargo clippy --workspace --all-targets --quiet -- -D warnings
+
+step "cargo doc (warnings are errors)"
+RUSTDOCFLAGS="-D warnings" cargo doc --workspace --no-deps --quiet
+
+step "golden data regenerates byte for byte from the outside references"
+"$PY" tests/golden/make_goldens.py --check
+
+step "verify.py self-test (NumPy and Pillow judges)"
+"$PY" -m unittest discover -s tests/py -q
+
+step "cargo test (unit, integration, CLI, doc tests)"
+cargo test --workspace --all-targets
+cargo test --workspace --doc
+
+step "done"
