@@ -26,9 +26,11 @@ pub mod demo;
 pub mod error;
 pub mod files;
 pub mod generate;
+mod graph;
 pub mod latent;
 pub mod model;
 pub mod npy;
+pub mod passes;
 pub mod pixels;
 mod plan;
 pub mod signature;
@@ -37,6 +39,7 @@ pub use error::{Error, Result};
 pub use generate::{Generator, GeneratorOptions, Images, Progress};
 pub use latent::{Interpolation, Latents, PathOptions, Prior, RngMode, SampleOptions};
 pub use model::{Limits, LoadOptions, Model, ModelInfo};
+pub use passes::PassOptions;
 pub use signature::{Batch, LabelKind, Layout, Signature, SignatureOverrides, ValueRange};
 
 /// The version of this crate.

@@ -50,6 +50,8 @@ pub struct LoadOptions {
     pub limits: Limits,
     /// Signature choices for models whose signature cannot be discovered.
     pub overrides: SignatureOverrides,
+    /// The graph passes to run before tract optimises (all on by default).
+    pub passes: crate::passes::PassOptions,
 }
 
 impl LoadOptions {
@@ -86,6 +88,12 @@ pub struct ModelInfo {
     pub macs_per_sample: Option<u64>,
     /// The model's metadata entries (key, value).
     pub metadata: BTreeMap<String, String>,
+    /// Nodes in the graph as stored.
+    pub nodes: usize,
+    /// Nodes after the load-time passes.
+    pub nodes_after_passes: usize,
+    /// What each load-time pass changed.
+    pub passes: Vec<crate::passes::PassResult>,
 }
 
 /// A loaded, checked model with its signature. Cheap to inspect; build a
@@ -174,6 +182,14 @@ impl Model {
             "Limits::max_parameters",
         )?;
         check_graph(graph)?;
+        let mut ops = BTreeMap::new();
+        for n in &graph.node {
+            *ops.entry(n.op_type.clone()).or_insert(0) += 1;
+        }
+        let nodes = graph.node.len();
+        let passes = crate::passes::run(&mut proto, &options.passes)?;
+        let graph = proto.graph.as_ref().ok_or_else(|| Error::Graph { reason: "no graph".into() })?;
+        let nodes_after_passes = graph.node.len();
 
         let found = signature::discover_inputs(graph, &options.overrides)?;
         let (typed, batch_symbol, input_order, output_index, image_shape, macs) =
@@ -187,10 +203,6 @@ impl Model {
             "Limits::max_output_pixels",
         )?;
 
-        let mut ops = BTreeMap::new();
-        for n in &graph.node {
-            *ops.entry(n.op_type.clone()).or_insert(0) += 1;
-        }
         let opset = proto
             .opset_import
             .iter()
@@ -211,6 +223,9 @@ impl Model {
             ops,
             macs_per_sample: macs,
             metadata,
+            nodes,
+            nodes_after_passes,
+            passes,
         };
         Ok(Model {
             proto,

@@ -8,6 +8,7 @@ mod demo_models;
 mod interp;
 mod load_errors;
 mod npy_files;
+mod passes;
 mod pixels_files;
 mod rng;
 mod test_models;

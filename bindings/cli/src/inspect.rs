@@ -133,6 +133,29 @@ pub fn run(args: &InspectArgs) -> CliResult {
         let md: Vec<String> = info.metadata.iter().map(|(k, v)| format!("{k}={v}")).collect();
         line("metadata", md.join("; "));
     }
+    if info.passes.is_empty() {
+        line("passes", "none applied (nothing to fold)".into());
+    } else {
+        line(
+            "passes",
+            format!(
+                "{} nodes as stored, {} after the load-time passes:",
+                info.nodes, info.nodes_after_passes
+            ),
+        );
+        for p in &info.passes {
+            line(
+                "",
+                format!(
+                    "{} ({} -> {} nodes): {}",
+                    p.pass,
+                    p.nodes_before,
+                    p.nodes_after,
+                    p.changes.join("; ")
+                ),
+            );
+        }
+    }
     line("load", format!("{load_ms:.1} ms"));
     out(&format!("{}\n{s}", args.model.display_name()));
     Ok(())

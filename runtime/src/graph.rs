@@ -1,0 +1,258 @@
+//! Small helpers over the ONNX protobuf graph: reading and writing tensor values, attributes,
+//! producers and consumers, and fresh names. Used by the load-time passes and by `convert`.
+
+use crate::error::{Error, Result};
+use std::collections::{HashMap, HashSet};
+use tract_onnx::pb;
+
+/// ONNX `TensorProto.DataType` codes used here.
+pub(crate) mod dt {
+    pub const FLOAT: i32 = 1;
+    pub const UINT8: i32 = 2;
+    pub const INT8: i32 = 3;
+    pub const INT32: i32 = 6;
+    pub const INT64: i32 = 7;
+    pub const FLOAT16: i32 = 10;
+    pub const DOUBLE: i32 = 11;
+}
+
+pub(crate) fn numel(t: &pb::TensorProto) -> usize {
+    t.dims.iter().map(|&d| d.max(0) as usize).product()
+}
+
+fn bad(t: &pb::TensorProto, what: &str) -> Error {
+    Error::Graph { reason: format!("tensor `{}`: {what}", t.name) }
+}
+
+/// IEEE 754 binary16 bits to f32 (exact).
+pub(crate) fn f16_to_f32(h: u16) -> f32 {
+    half::f16::from_bits(h).to_f32()
+}
+
+/// The values of a float-like tensor (float, float16, double) as f32.
+pub(crate) fn read_f32(t: &pb::TensorProto) -> Result<Vec<f32>> {
+    let n = numel(t);
+    let v: Vec<f32> = match t.data_type {
+        dt::FLOAT if !t.raw_data.is_empty() => {
+            t.raw_data.chunks_exact(4).map(|b| f32::from_le_bytes([b[0], b[1], b[2], b[3]])).collect()
+        }
+        dt::FLOAT => t.float_data.clone(),
+        dt::FLOAT16 if !t.raw_data.is_empty() => {
+            t.raw_data.chunks_exact(2).map(|b| f16_to_f32(u16::from_le_bytes([b[0], b[1]]))).collect()
+        }
+        // float16 in int32_data holds one value per entry in the low 16 bits.
+        dt::FLOAT16 => t.int32_data.iter().map(|&v| f16_to_f32(v as u16)).collect(),
+        dt::DOUBLE if !t.raw_data.is_empty() => t
+            .raw_data
+            .chunks_exact(8)
+            .map(|b| f64::from_le_bytes(b.try_into().unwrap_or([0; 8])) as f32)
+            .collect(),
+        dt::DOUBLE => t.double_data.iter().map(|&v| v as f32).collect(),
+        other => {
+            return Err(bad(
+                t,
+                &format!("expected a float tensor, found {}", crate::model::dtype_name(other)),
+            ))
+        }
+    };
+    if v.len() != n {
+        return Err(bad(t, &format!("holds {} values for shape {:?}", v.len(), t.dims)));
+    }
+    Ok(v)
+}
+
+/// The values of an integer tensor as i64 (int8, uint8, int32, int64).
+pub(crate) fn read_i64(t: &pb::TensorProto) -> Result<Vec<i64>> {
+    let n = numel(t);
+    let r = &t.raw_data;
+    let v: Vec<i64> = match t.data_type {
+        dt::INT64 if !r.is_empty() => {
+            r.chunks_exact(8).map(|b| i64::from_le_bytes(b.try_into().unwrap_or([0; 8]))).collect()
+        }
+        dt::INT64 => t.int64_data.clone(),
+        dt::INT32 if !r.is_empty() => {
+            r.chunks_exact(4).map(|b| i64::from(i32::from_le_bytes([b[0], b[1], b[2], b[3]]))).collect()
+        }
+        dt::INT8 if !r.is_empty() => r.iter().map(|&b| i64::from(b as i8)).collect(),
+        dt::UINT8 if !r.is_empty() => r.iter().map(|&b| i64::from(b)).collect(),
+        dt::INT32 | dt::INT8 | dt::UINT8 => t.int32_data.iter().map(|&v| i64::from(v)).collect(),
+        other => {
+            return Err(bad(
+                t,
+                &format!("expected an integer tensor, found {}", crate::model::dtype_name(other)),
+            ))
+        }
+    };
+    if v.len() != n {
+        return Err(bad(t, &format!("holds {} values for shape {:?}", v.len(), t.dims)));
+    }
+    Ok(v)
+}
+
+/// A float32 tensor with raw little-endian data.
+pub(crate) fn f32_tensor(name: &str, dims: &[i64], values: &[f32]) -> pb::TensorProto {
+    let mut raw = Vec::with_capacity(values.len() * 4);
+    for v in values {
+        raw.extend_from_slice(&v.to_le_bytes());
+    }
+    pb::TensorProto {
+        name: name.to_string(),
+        dims: dims.to_vec(),
+        data_type: dt::FLOAT,
+        raw_data: raw,
+        ..Default::default()
+    }
+}
+
+/// An int64 tensor with raw little-endian data.
+pub(crate) fn i64_tensor(name: &str, dims: &[i64], values: &[i64]) -> pb::TensorProto {
+    let mut raw = Vec::with_capacity(values.len() * 8);
+    for v in values {
+        raw.extend_from_slice(&v.to_le_bytes());
+    }
+    pb::TensorProto {
+        name: name.to_string(),
+        dims: dims.to_vec(),
+        data_type: dt::INT64,
+        raw_data: raw,
+        ..Default::default()
+    }
+}
+
+/// The attribute `name` of a node.
+pub(crate) fn attr<'a>(n: &'a pb::NodeProto, name: &str) -> Option<&'a pb::AttributeProto> {
+    n.attribute.iter().find(|a| a.name == name)
+}
+
+pub(crate) fn attr_i(n: &pb::NodeProto, name: &str, default: i64) -> i64 {
+    attr(n, name).map(|a| a.i).unwrap_or(default)
+}
+
+pub(crate) fn attr_f(n: &pb::NodeProto, name: &str, default: f32) -> f32 {
+    attr(n, name).map(|a| a.f).unwrap_or(default)
+}
+
+pub(crate) fn attr_ints(n: &pb::NodeProto, name: &str) -> Option<Vec<i64>> {
+    attr(n, name).map(|a| a.ints.clone())
+}
+
+/// A float attribute.
+pub(crate) fn float_attr(name: &str, v: f32) -> pb::AttributeProto {
+    pb::AttributeProto { name: name.into(), r#type: 1, f: v, ..Default::default() }
+}
+
+/// Constant values of the graph by name: initializers and the outputs of `Constant` nodes with a
+/// `value` tensor.
+pub(crate) fn constants(g: &pb::GraphProto) -> HashMap<String, pb::TensorProto> {
+    let mut m: HashMap<String, pb::TensorProto> =
+        g.initializer.iter().map(|t| (t.name.clone(), t.clone())).collect();
+    for n in &g.node {
+        if n.op_type == "Constant" {
+            if let (Some(out), Some(t)) = (n.output.first(), attr(n, "value").and_then(|a| a.t.as_ref())) {
+                let mut t = t.clone();
+                t.name = out.clone();
+                m.insert(out.clone(), t);
+            }
+        }
+    }
+    m
+}
+
+/// How many node inputs and graph outputs read each value.
+pub(crate) fn use_counts(g: &pb::GraphProto) -> HashMap<String, usize> {
+    let mut m: HashMap<String, usize> = HashMap::new();
+    for n in &g.node {
+        for i in &n.input {
+            if !i.is_empty() {
+                *m.entry(i.clone()).or_default() += 1;
+            }
+        }
+    }
+    for o in &g.output {
+        *m.entry(o.name.clone()).or_default() += 1;
+    }
+    m
+}
+
+/// The index of the node producing each value.
+pub(crate) fn producers(g: &pb::GraphProto) -> HashMap<String, usize> {
+    let mut m = HashMap::new();
+    for (i, n) in g.node.iter().enumerate() {
+        for o in &n.output {
+            if !o.is_empty() {
+                m.insert(o.clone(), i);
+            }
+        }
+    }
+    m
+}
+
+/// Every name used in the graph, to make fresh ones.
+pub(crate) struct Names(HashSet<String>);
+
+impl Names {
+    pub(crate) fn of(g: &pb::GraphProto) -> Names {
+        let mut s = HashSet::new();
+        for t in &g.initializer {
+            s.insert(t.name.clone());
+        }
+        for v in g.input.iter().chain(&g.output).chain(&g.value_info) {
+            s.insert(v.name.clone());
+        }
+        for n in &g.node {
+            s.insert(n.name.clone());
+            s.extend(n.input.iter().cloned());
+            s.extend(n.output.iter().cloned());
+        }
+        Names(s)
+    }
+
+    /// `base`, or `base_2`, `base_3`, ... whichever is free; the name is then taken.
+    pub(crate) fn fresh(&mut self, base: &str) -> String {
+        let mut name = base.to_string();
+        let mut k = 2;
+        while self.0.contains(&name) {
+            name = format!("{base}_{k}");
+            k += 1;
+        }
+        self.0.insert(name.clone());
+        name
+    }
+}
+
+/// Renames every use of value `from` (node inputs) to `to`.
+pub(crate) fn rename_uses(g: &mut pb::GraphProto, from: &str, to: &str) {
+    for n in &mut g.node {
+        for i in &mut n.input {
+            if i == from {
+                *i = to.to_string();
+            }
+        }
+    }
+}
+
+/// Removes initializers and Constant nodes nobody reads any more; returns how many went.
+pub(crate) fn prune_constants(g: &mut pb::GraphProto) -> usize {
+    let mut removed: HashSet<String> = HashSet::new();
+    let mut count = 0;
+    loop {
+        let uses = use_counts(g);
+        let before = g.initializer.len() + g.node.len();
+        g.initializer.retain(|t| {
+            let keep = uses.contains_key(&t.name);
+            if !keep {
+                removed.insert(t.name.clone());
+            }
+            keep
+        });
+        g.node.retain(|n| n.op_type != "Constant" || n.output.iter().any(|o| uses.contains_key(o)));
+        let after = g.initializer.len() + g.node.len();
+        if after == before {
+            break;
+        }
+        count += before - after;
+    }
+    // Old exporters also list initializers as graph inputs; drop the listing with the tensor.
+    g.input.retain(|i| !removed.contains(&i.name));
+    count
+}
