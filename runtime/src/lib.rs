@@ -22,12 +22,14 @@
 //! ```
 #![forbid(unsafe_code)]
 
+pub mod convert;
 pub mod demo;
 pub mod error;
 pub mod files;
 pub mod generate;
 mod graph;
 pub mod latent;
+pub mod metrics;
 pub mod model;
 pub mod npy;
 pub mod passes;
@@ -35,6 +37,7 @@ pub mod pixels;
 mod plan;
 pub mod signature;
 
+pub use convert::{ConvertOptions, ConvertReport, Export, Precision};
 pub use error::{Error, Result};
 pub use generate::{Generator, GeneratorOptions, Images, Progress};
 pub use latent::{Interpolation, Latents, PathOptions, Prior, RngMode, SampleOptions};

@@ -82,3 +82,38 @@ pub fn max_abs_diff(a: &[f32], b: &[f32]) -> f32 {
     assert_eq!(a.len(), b.len(), "length differs");
     a.iter().zip(b).map(|(x, y)| (x - y).abs()).fold(0.0, f32::max)
 }
+
+/// Runs `tests/py/onnx_judge.py` with arguments; panics with its message unless it agrees.
+pub fn judge(args: &[&std::ffi::OsStr]) {
+    let script = root().join("tests").join("py").join("onnx_judge.py");
+    let out = Command::new(python())
+        .arg(&script)
+        .args(args)
+        .output()
+        .unwrap_or_else(|e| panic!("cannot run {} (install tests/requirements.txt): {e}", python()));
+    assert!(
+        out.status.success(),
+        "onnx_judge {:?} failed ({}): {}{}",
+        args,
+        out.status,
+        String::from_utf8_lossy(&out.stdout),
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
+
+/// NPY v1.0 bytes of a uint8 array (for image stacks handed to Python judges).
+pub fn npy_u8(shape: &[usize], values: &[u8]) -> Vec<u8> {
+    let dims: Vec<String> = shape.iter().map(|d| d.to_string()).collect();
+    let shape_text =
+        if shape.len() == 1 { format!("({},)", dims[0]) } else { format!("({})", dims.join(", ")) };
+    let mut dict = format!("{{'descr': '|u1', 'fortran_order': False, 'shape': {shape_text}, }}");
+    while (10 + dict.len() + 1) % 64 != 0 {
+        dict.push(' ');
+    }
+    dict.push('\n');
+    let mut out = b"\x93NUMPY\x01\x00".to_vec();
+    out.extend_from_slice(&(dict.len() as u16).to_le_bytes());
+    out.extend_from_slice(dict.as_bytes());
+    out.extend_from_slice(values);
+    out
+}

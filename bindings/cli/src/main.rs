@@ -4,6 +4,7 @@
 //! Exit codes: 0 success, 1 a job that failed, 2 bad usage or unreadable input.
 
 mod common;
+mod convert_cmd;
 mod generate_cmds;
 mod inspect;
 
@@ -26,6 +27,8 @@ enum Command {
     Sample(generate_cmds::SampleArgs),
     /// Animate a path through latents (seeds or NPY keyframes): a GIF or a strip PNG.
     Morph(generate_cmds::MorphArgs),
+    /// Write a smaller export (f16 or int8 weights, or f32 packed into one file) with a fidelity report.
+    Convert(convert_cmd::ConvertArgs),
 }
 
 fn main() {
@@ -41,6 +44,7 @@ fn main() {
         Command::Inspect(a) => inspect::run(&a),
         Command::Sample(a) => generate_cmds::sample(&a),
         Command::Morph(a) => generate_cmds::morph(&a),
+        Command::Convert(a) => convert_cmd::run(&a),
     };
     if let Err(Failure { code, error }) = result {
         // One line: the outer context and the chain of causes.

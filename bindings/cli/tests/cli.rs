@@ -201,3 +201,58 @@ fn a_closed_pipe_is_a_quiet_exit() {
     assert!(o.status.success(), "{}", text(&o.stderr));
     assert!(text(&o.stderr).is_empty(), "{}", text(&o.stderr));
 }
+
+#[test]
+fn convert_writes_exports_and_refuses_short_fidelity() {
+    let d = tempfile::tempdir().unwrap();
+    let o = genloom(
+        &[
+            "convert",
+            &demo("tiles-dynamo.onnx"),
+            "--to",
+            "int8",
+            "--out",
+            "t8.onnx",
+            "--report",
+            "r.json",
+            "--eval-count",
+            "8",
+        ],
+        d.path(),
+    );
+    assert!(o.status.success(), "{}", text(&o.stderr));
+    let s = text(&o.stdout);
+    assert!(s.contains("wrote t8.onnx (int8)") && s.contains("PSNR") && s.contains("size vs source"), "{s}");
+    let r: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(d.path().join("r.json")).unwrap()).unwrap();
+    assert_eq!(r["precision"], "int8");
+    assert_eq!(r["eval_count"], 8);
+    // The export inspects as int8 and samples.
+    let o = genloom(&["sample", "t8.onnx", "-n", "4", "--out", "x.png"], d.path());
+    assert!(o.status.success(), "{}", text(&o.stderr));
+    // An impossible fidelity bar: exit 1, nothing written.
+    let o = genloom(
+        &[
+            "convert",
+            &demo("tiles.onnx"),
+            "--to",
+            "int8",
+            "--out",
+            "bad.onnx",
+            "--min-psnr",
+            "200",
+            "--eval-count",
+            "4",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.status.code(), Some(1), "{}", text(&o.stderr));
+    assert!(text(&o.stderr).contains("below --min-psnr 200"), "{}", text(&o.stderr));
+    assert!(!d.path().join("bad.onnx").exists());
+    // Converting an export again is refused (exit 2).
+    let o = genloom(&["convert", "t8.onnx", "--to", "f16", "--out", "again.onnx"], d.path());
+    assert_eq!(o.status.code(), Some(2), "{}", text(&o.stderr));
+    assert!(text(&o.stderr).contains("already converted to int8"), "{}", text(&o.stderr));
+    let o = genloom(&["convert", "--to", "int4"], d.path());
+    assert_eq!(o.status.code(), Some(2));
+}
