@@ -540,8 +540,7 @@ pub fn compare(reference: &Model, other: &Model, seed: u64, count: usize) -> Res
             "two exports of the same generator (same latent size, label classes and image size)",
         ));
     }
-    let mut o = GeneratorOptions::default();
-    o.warm_up = false;
+    let o = GeneratorOptions { warm_up: false, ..Default::default() };
     let ga = Generator::new(reference.clone(), o.clone())?;
     let gb = Generator::new(other.clone(), o)?;
     let latents = ga.sample_latents(&SampleOptions::new(seed, count))?;

@@ -201,7 +201,7 @@ pub fn fidelity(a: &crate::Images, b: &crate::Images) -> Result<Fidelity> {
     let (pb, _) = crate::pixels::all_pixels(b, format)?;
     let (mut sq, mut n, mut off) = (0f64, 0usize, 0usize);
     let (mut min_psnr, mut ssim_sum, mut min_ssim) = (f64::INFINITY, 0f64, f64::INFINITY);
-    let window_fits = a.width >= 2 * RADIUS + 1 && a.height >= 2 * RADIUS + 1;
+    let window_fits = a.width > 2 * RADIUS && a.height > 2 * RADIUS;
     for (x, y) in pa.iter().zip(&pb) {
         let m = mse(&x.data, &y.data);
         sq += m * x.data.len() as f64;
