@@ -402,7 +402,7 @@ impl Generator {
             inputs.push(t.into_tvalue());
         }
         let plan = self.plans.plan_for(batch)?;
-        let outputs = plan.run(inputs).map_err(|e| Error::tract(format!("run a batch of {batch}"), e))?;
+        let outputs = crate::model::guard(format!("run a batch of {batch}"), || plan.run(inputs))?;
         let out = outputs.get(self.model.output_index).ok_or_else(|| Error::Output {
             reason: format!("the model returned {} outputs", outputs.len()),
         })?;

@@ -22,6 +22,7 @@
 //! ```
 #![forbid(unsafe_code)]
 
+pub mod check;
 pub mod convert;
 pub mod demo;
 pub mod error;

@@ -125,25 +125,7 @@ impl Model {
     /// [`Error::ExternalDataLocation`] for a location that is absolute or leaves the folder;
     /// [`Error::ExternalDataMissing`] when a data file is absent.
     pub fn from_path(path: impl AsRef<Path>, options: &LoadOptions) -> Result<Model> {
-        let path = path.as_ref();
-        let meta = std::fs::metadata(path).map_err(|e| Error::io("read", path, e))?;
-        if meta.is_dir() {
-            return Err(Error::io(
-                "read",
-                path,
-                std::io::Error::other("it is a folder; expected an .onnx file"),
-            ));
-        }
-        check_limit(
-            "the model file's size in bytes",
-            meta.len(),
-            options.limits.max_model_bytes,
-            "Limits::max_model_bytes",
-        )?;
-        let bytes = std::fs::read(path).map_err(|e| Error::io("read", path, e))?;
-        let dir = path.parent().map(Path::to_path_buf).unwrap_or_default();
-        let dir = if dir.as_os_str().is_empty() { PathBuf::from(".") } else { dir };
-        Model::load(&bytes, &path.display().to_string(), Some(&dir), options)
+        Model::from_raw(read_raw_path(path.as_ref(), &options.limits)?, options)
     }
 
     /// Loads a single-file model from bytes.
@@ -159,29 +141,12 @@ impl Model {
     }
 
     fn load(bytes: &[u8], what: &str, dir: Option<&Path>, options: &LoadOptions) -> Result<Model> {
-        check_limit(
-            "the model's size in bytes",
-            bytes.len() as u64,
-            options.limits.max_model_bytes,
-            "Limits::max_model_bytes",
-        )?;
-        sniff(bytes, what)?;
-        let mut proto = decode(bytes, what)?;
-        let sha256 = hex(&Sha256::digest(bytes));
-        let mut file_bytes = bytes.len() as u64;
-        let external = resolve_external_data(&mut proto, dir, &options.limits, &mut file_bytes)?;
-        let graph = proto.graph.as_ref().ok_or_else(|| Error::NotOnnx {
-            what: what.to_string(),
-            reason: "it is protobuf but holds no graph".into(),
-        })?;
-        let (parameters, weight_bytes) = check_tensors(graph)?;
-        check_limit(
-            "the model's parameter count",
-            parameters,
-            options.limits.max_parameters,
-            "Limits::max_parameters",
-        )?;
-        check_graph(graph)?;
+        Model::from_raw(read_raw(bytes, what, dir, &options.limits)?, options)
+    }
+
+    pub(crate) fn from_raw(raw: Raw, options: &LoadOptions) -> Result<Model> {
+        let Raw { mut proto, sha256, file_bytes, external, parameters, weight_bytes } = raw;
+        let graph = proto.graph.as_ref().ok_or_else(|| Error::Graph { reason: "no graph".into() })?;
         let mut ops = BTreeMap::new();
         for n in &graph.node {
             *ops.entry(n.op_type.clone()).or_insert(0) += 1;
@@ -257,6 +222,77 @@ impl Model {
     /// The model as a self-contained ONNX protobuf (external data already inlined).
     pub fn onnx(&self) -> &pb::ModelProto {
         &self.proto
+    }
+}
+
+/// A model read and checked up to its ONNX graph (no tract yet): external data inlined, tensor
+/// sizes and graph wiring checked, limits enforced.
+#[derive(Debug, Clone)]
+pub(crate) struct Raw {
+    pub proto: pb::ModelProto,
+    pub sha256: String,
+    pub file_bytes: u64,
+    pub external: Vec<String>,
+    pub parameters: u64,
+    pub weight_bytes: u64,
+}
+
+/// Reads a model file up to its ONNX graph (see [`Raw`]).
+pub(crate) fn read_raw_path(path: &Path, limits: &Limits) -> Result<Raw> {
+    let meta = std::fs::metadata(path).map_err(|e| Error::io("read", path, e))?;
+    if meta.is_dir() {
+        return Err(Error::io("read", path, std::io::Error::other("it is a folder; expected an .onnx file")));
+    }
+    check_limit(
+        "the model file's size in bytes",
+        meta.len(),
+        limits.max_model_bytes,
+        "Limits::max_model_bytes",
+    )?;
+    let bytes = std::fs::read(path).map_err(|e| Error::io("read", path, e))?;
+    let dir = path.parent().map(Path::to_path_buf).unwrap_or_default();
+    let dir = if dir.as_os_str().is_empty() { PathBuf::from(".") } else { dir };
+    read_raw(&bytes, &path.display().to_string(), Some(&dir), limits)
+}
+
+/// Reads model bytes up to the ONNX graph (see [`Raw`]); `dir` is where external data lives.
+pub(crate) fn read_raw(bytes: &[u8], what: &str, dir: Option<&Path>, limits: &Limits) -> Result<Raw> {
+    check_limit(
+        "the model's size in bytes",
+        bytes.len() as u64,
+        limits.max_model_bytes,
+        "Limits::max_model_bytes",
+    )?;
+    sniff(bytes, what)?;
+    let mut proto = decode(bytes, what)?;
+    let sha256 = hex(&Sha256::digest(bytes));
+    let mut file_bytes = bytes.len() as u64;
+    let external = resolve_external_data(&mut proto, dir, limits, &mut file_bytes)?;
+    let graph = proto.graph.as_ref().ok_or_else(|| Error::NotOnnx {
+        what: what.to_string(),
+        reason: "it is protobuf but holds no graph".into(),
+    })?;
+    let (parameters, weight_bytes) = check_tensors(graph)?;
+    check_limit("the model's parameter count", parameters, limits.max_parameters, "Limits::max_parameters")?;
+    check_graph(graph)?;
+    Ok(Raw { proto, sha256, file_bytes, external, parameters, weight_bytes })
+}
+
+/// Runs a tract step, turning both its errors and its panics into [`Error::Tract`]: tract is a
+/// large engine, and a model that reaches an unimplemented path in it must not take the host
+/// application down.
+pub(crate) fn guard<T>(action: impl Into<String>, f: impl FnOnce() -> TractResult<T>) -> Result<T> {
+    match std::panic::catch_unwind(std::panic::AssertUnwindSafe(f)) {
+        Ok(Ok(v)) => Ok(v),
+        Ok(Err(e)) => Err(Error::tract(action, e)),
+        Err(panic) => {
+            let msg = panic
+                .downcast_ref::<&str>()
+                .map(|s| s.to_string())
+                .or_else(|| panic.downcast_ref::<String>().cloned())
+                .unwrap_or_else(|| "an unknown panic".into());
+            Err(Error::tract(action, format!("tract stopped on an internal error (panic: {msg})")))
+        }
     }
 }
 
@@ -632,7 +668,7 @@ type Built = (TypedModel, Option<Symbol>, Vec<InputRole>, usize, Vec<TDim>, Opti
 /// Parses with tract, fixes the input facts from the discovered inputs, and types the model.
 fn build_typed(proto: &pb::ModelProto, found: &signature::FoundInputs) -> Result<Built> {
     let onnx = tract_onnx::onnx().with_ignore_output_shapes(true).with_ignore_value_info(true);
-    let parsed = onnx.parse(proto, None).map_err(|e| Error::tract("parse the model", e))?;
+    let parsed = guard("parse the model", || onnx.parse(proto, None))?;
     if !parsed.unresolved_inputs.is_empty() {
         return Err(Error::Graph {
             reason: format!("inputs {:?} could not be resolved", parsed.unresolved_inputs),
@@ -692,8 +728,7 @@ fn build_typed(proto: &pb::ModelProto, found: &signature::FoundInputs) -> Result
         .ok_or_else(|| Error::Signature {
             reason: format!("output `{}` is not among tract's outputs", found.output),
         })?;
-    let typed =
-        model.into_typed().map_err(|e| Error::tract("type the model (infer every shape and type)", e))?;
+    let typed = guard("type the model (infer every shape and type)", || model.into_typed())?;
     let out = typed.output_outlets().map_err(|e| Error::tract("list the outputs", e))?[output_index];
     let fact = typed.outlet_fact(out).map_err(|e| Error::tract("read the output fact", e))?;
     if fact.datum_type != f32::datum_type()

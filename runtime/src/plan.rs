@@ -6,6 +6,7 @@
 //! [`Plans`] serves any number of threads at once.
 
 use crate::error::{Error, Result};
+use crate::model::guard;
 use std::collections::HashMap;
 use std::sync::{Arc, Mutex, OnceLock};
 use tract_onnx::prelude::*;
@@ -98,12 +99,9 @@ impl Plans {
         if let Some(p) = self.symbolic.get() {
             return Ok(p.clone());
         }
-        let optimised = self
-            .typed
-            .clone()
-            .into_optimized()
-            .map_err(|e| Error::tract("optimise the symbolic-batch plan", e))?;
-        let p = optimised.into_runnable().map_err(|e| Error::tract("build the symbolic-batch plan", e))?;
+        let p = guard("optimise the symbolic-batch plan", || {
+            self.typed.clone().into_optimized()?.into_runnable()
+        })?;
         Ok(self.symbolic.get_or_init(|| p).clone())
     }
 }

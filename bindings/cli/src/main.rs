@@ -3,6 +3,7 @@
 //! Human output goes to stdout (or JSON with `--json`), progress bars and errors to stderr.
 //! Exit codes: 0 success, 1 a job that failed, 2 bad usage or unreadable input.
 
+mod check_cmd;
 mod common;
 mod convert_cmd;
 mod generate_cmds;
@@ -29,6 +30,8 @@ enum Command {
     Morph(generate_cmds::MorphArgs),
     /// Write a smaller export (f16 or int8 weights, or f32 packed into one file) with a fidelity report.
     Convert(convert_cmd::ConvertArgs),
+    /// The release gate: structure, batch independence, determinism, finiteness, diversity, parity.
+    Check(check_cmd::CheckArgs),
 }
 
 fn main() {
@@ -45,6 +48,7 @@ fn main() {
         Command::Sample(a) => generate_cmds::sample(&a),
         Command::Morph(a) => generate_cmds::morph(&a),
         Command::Convert(a) => convert_cmd::run(&a),
+        Command::Check(a) => check_cmd::run(&a),
     };
     if let Err(Failure { code, error }) = result {
         // One line: the outer context and the chain of causes.
