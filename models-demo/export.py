@@ -13,6 +13,7 @@ Inputs are `z` float32 [N, 64] (and `kind` int64 [N]); the output is `image` flo
 
 from __future__ import annotations
 
+import contextlib
 import os
 import warnings
 from pathlib import Path
@@ -23,15 +24,16 @@ import torch
 from models import LATENT, NUM_KINDS, KindTileGenerator, TileGenerator
 
 HERE = Path(__file__).resolve().parent
+OUT = HERE  # where the .onnx files go (train.py --quick points this and CHECKPOINTS elsewhere)
 CHECKPOINTS = HERE / "checkpoints"
 LEGACY_OPSET = 17
 EXTERNAL_THRESHOLD_BYTES = 64
 NAMES = ["tiles", "tiles-kind"]
 
 
-def load_generator(name: str) -> torch.nn.Module:
+def load_generator(name: str, checkpoints: Path | None = None) -> torch.nn.Module:
     model = KindTileGenerator() if name == "tiles-kind" else TileGenerator()
-    state = torch.load(CHECKPOINTS / f"{name}.pt", map_location="cpu", weights_only=True)
+    state = torch.load((checkpoints or CHECKPOINTS) / f"{name}.pt", map_location="cpu", weights_only=True)
     model.load_state_dict(state)
     return model.eval()
 
@@ -57,7 +59,7 @@ def _rename_batch_dim(model: onnx.ModelProto, new: str = "N") -> None:
 
 
 def export_legacy(model: torch.nn.Module, name: str) -> Path:
-    path = HERE / f"{name}.onnx"
+    path = OUT / f"{name}.onnx"
     inputs, outputs = io_names(name)
     axes = {n: {0: "N"} for n in inputs + outputs}
     with warnings.catch_warnings():
@@ -79,12 +81,12 @@ def export_legacy(model: torch.nn.Module, name: str) -> Path:
 
 
 def export_dynamo(model: torch.nn.Module, name: str) -> tuple[Path, Path]:
-    path = HERE / f"{name}-dynamo.onnx"
+    path = OUT / f"{name}-dynamo.onnx"
     data_name = f"{name}-dynamo.onnx.data"
     inputs, outputs = io_names(name)
     batch = torch.export.Dim("N", min=1, max=4096)
     shapes = tuple({0: batch} for _ in inputs)
-    for stale in (path, HERE / data_name):
+    for stale in (path, OUT / data_name):
         if stale.exists():
             stale.unlink()
     with warnings.catch_warnings():
@@ -101,7 +103,7 @@ def export_dynamo(model: torch.nn.Module, name: str) -> tuple[Path, Path]:
             dynamic_shapes=shapes,
             external_data=True,
         )
-    written = sorted(p.name for p in HERE.glob(f"{name}-dynamo.onnx*"))
+    written = sorted(p.name for p in OUT.glob(f"{name}-dynamo.onnx*"))
     m = onnx.load(str(path), load_external_data=False)
     inline = [t.name for t in m.graph.initializer if t.data_location != onnx.TensorProto.EXTERNAL]
     print(f"  {name}-dynamo: exporter wrote {written}; {len(m.graph.initializer) - len(inline)}/"
@@ -115,20 +117,23 @@ def export_dynamo(model: torch.nn.Module, name: str) -> tuple[Path, Path]:
     # ONNX shape inference, and so `onnx.checker` with full_check, cannot read those from
     # external data.
     m = onnx.load(str(path), load_external_data=True)
-    for p in HERE.glob(f"{name}-dynamo.onnx*"):
+    for p in OUT.glob(f"{name}-dynamo.onnx*"):
         if p.name != path.name:
             p.unlink()
     _rename_batch_dim(m)
-    onnx.save_model(
-        m,
-        str(path),
-        save_as_external_data=True,
-        all_tensors_to_one_file=True,
-        location=data_name,
-        size_threshold=EXTERNAL_THRESHOLD_BYTES,
-        convert_attribute=False,
-    )
-    os.chmod(HERE / data_name, 0o644)
+    # onnx checks whether `location` already exists relative to the working directory, not to
+    # the model file, so save from the output folder
+    with contextlib.chdir(OUT):
+        onnx.save_model(
+            m,
+            path.name,
+            save_as_external_data=True,
+            all_tensors_to_one_file=True,
+            location=data_name,
+            size_threshold=EXTERNAL_THRESHOLD_BYTES,
+            convert_attribute=False,
+        )
+    os.chmod(OUT / data_name, 0o644)
     check = onnx.load(str(path), load_external_data=False)
     locations = set()
     for t in check.graph.initializer:
@@ -137,8 +142,8 @@ def export_dynamo(model: torch.nn.Module, name: str) -> tuple[Path, Path]:
         locations.update(e.value for e in t.external_data if e.key == "location")
     assert locations == {data_name}, locations
     onnx.checker.check_model(str(path), full_check=True)
-    assert os.path.getsize(HERE / data_name) > 0
-    return path, HERE / data_name
+    assert os.path.getsize(OUT / data_name) > 0
+    return path, OUT / data_name
 
 
 def describe(path: Path) -> str:

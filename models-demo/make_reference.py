@@ -26,7 +26,9 @@ import dataset
 from export import load_generator
 
 HERE = Path(__file__).resolve().parent
+OUT = HERE  # train.py --quick points OUT, REF and CHECKPOINTS elsewhere
 REF = HERE / "reference"
+CHECKPOINTS = HERE / "checkpoints"
 LATENT_SEED = 2026
 COUNT = 16
 TOLERANCE = 1e-4
@@ -58,17 +60,18 @@ def save_samples(models: dict) -> None:
     if "tiles" in models:
         z = rng.standard_normal((32, 64), dtype=np.float32)
         out = torch_output(models["tiles"], False, z, np.zeros(32, dtype=np.int64))
-        dataset.save_grid(out, 4, 8, HERE / "tiles-samples.png")
+        dataset.save_grid(out, 4, 8, OUT / "tiles-samples.png")
     if "tiles-kind" in models:
         z = np.tile(rng.standard_normal((8, 64), dtype=np.float32), (4, 1))  # same 8 latents per row
         k = np.repeat(np.arange(4), 8).astype(np.int64)
         out = torch_output(models["tiles-kind"], True, z, k)
-        dataset.save_grid(out, 4, 8, HERE / "tiles-kind-samples.png")
+        dataset.save_grid(out, 4, 8, OUT / "tiles-kind-samples.png")
 
 
 def kind_colour_check(model) -> dict:
     """Mean colour of 512 generated tiles per kind against the dataset's kind means."""
-    means = json.loads((REF / "kind-means.json").read_text())
+    stored = HERE / "reference" / "kind-means.json"
+    means = json.loads(stored.read_text()) if stored.exists() else dataset.kind_means()
     target = np.asarray(means["mean_rgb"], dtype=np.float64)
     rng = np.random.default_rng(11)
     got = []
@@ -87,7 +90,7 @@ def kind_colour_check(model) -> dict:
 
 
 def main() -> None:
-    REF.mkdir(exist_ok=True)
+    REF.mkdir(parents=True, exist_ok=True)
     latents, labels = reference_inputs()
     np.save(REF / "latents.npy", latents)
     np.save(REF / "labels.npy", labels)
@@ -103,13 +106,13 @@ def main() -> None:
     }
     worst = 0.0
     for export_name, (model_name, how) in EXPORTS.items():
-        path = HERE / f"{export_name}.onnx"
-        if not path.exists() or not (HERE / "checkpoints" / f"{model_name}.pt").exists():
+        path = OUT / f"{export_name}.onnx"
+        if not path.exists() or not (CHECKPOINTS / f"{model_name}.pt").exists():
             print(f"skip {export_name}: missing {path.name} or checkpoint")
             continue
         conditional = model_name == "tiles-kind"
         if model_name not in models:
-            models[model_name] = load_generator(model_name)
+            models[model_name] = load_generator(model_name, CHECKPOINTS)
         expected = torch_output(models[model_name], conditional, latents, labels)
 
         feeds = {"z": latents}

@@ -91,19 +91,46 @@ class TileDiscriminator(nn.Module):
         return self.out(self.features(x)).flatten()
 
 
+class KindMinibatchStd(nn.Module):
+    """Append one channel holding, for each sample, the average feature standard deviation over
+    the batch samples of its own kind (a per-kind form of Karras et al. 2018's minibatch
+    standard deviation): a generator that ignores z gives near-zero values there, real tiles do not."""
+
+    def __init__(self, kinds: int = NUM_KINDS):
+        super().__init__()
+        self.kinds = kinds
+
+    def forward(self, h: torch.Tensor, kind: torch.Tensor) -> torch.Tensor:
+        onehot = nn.functional.one_hot(kind, self.kinds).to(h.dtype)  # [N, K]
+        count = onehot.sum(0).clamp(min=1.0)[:, None]
+        flat = h.flatten(1)
+        mean = onehot.t() @ flat / count
+        var = (onehot.t() @ (flat * flat) / count - mean * mean).clamp(min=0.0)
+        std = torch.sqrt(var + 1e-8).mean(1)  # [K]
+        per_sample = (onehot @ std)[:, None, None, None]
+        return torch.cat([h, per_sample.expand(-1, 1, h.shape[2], h.shape[3])], dim=1)
+
+
 class KindTileDiscriminator(nn.Module):
-    """Projection discriminator: logit = w . phi(x) + <embed(kind), phi(x)>."""
+    """Label-channel conditioning: the image gets four one-hot kind planes (3 + 4 input
+    channels), and a per-kind minibatch standard-deviation channel before the last layer."""
 
     def __init__(self, kinds: int = NUM_KINDS, ndf: int = NDF):
         super().__init__()
-        self.features = _features(ndf)
-        self.out = nn.Conv2d(ndf * 4, 1, 4, 1, 0)
-        self.project = nn.Embedding(kinds, ndf * 4 * 4 * 4)
-        nn.init.normal_(self.project.weight, 0.0, 0.02)
+        self.kinds = kinds
+        self.features = nn.Sequential(
+            nn.Conv2d(3 + kinds, ndf, 4, 2, 1, bias=False),
+            nn.LeakyReLU(0.2, True),
+            *list(_features(ndf).children())[2:],
+        )
+        self.stddev = KindMinibatchStd(kinds)
+        self.out = nn.Conv2d(ndf * 4 + 1, 1, 4, 1, 0)
 
     def forward(self, x: torch.Tensor, kind: torch.Tensor) -> torch.Tensor:
-        h = self.features(x)
-        return self.out(h).flatten() + (self.project(kind) * h.flatten(1)).sum(1)
+        planes = nn.functional.one_hot(kind, self.kinds).to(x.dtype)[:, :, None, None]
+        planes = planes.expand(-1, -1, x.shape[2], x.shape[3])
+        h = self.features(torch.cat([x, planes], dim=1))
+        return self.out(self.stddev(h, kind)).flatten()
 
 
 def dcgan_init(module: nn.Module) -> None:

@@ -27,11 +27,16 @@ pub struct GeneratorOptions {
     pub max_cached_plans: usize,
     /// Build the plan for `micro_batch` (and for 1) when the generator is created. Default true.
     pub warm_up: bool,
+    /// Measure micro-batches 1, 2, 4, 8 and 16 when the generator is created and keep the
+    /// fastest per image (replacing `micro_batch`). Costs about 0.1 s for the demo model.
+    /// Default false, so that building a generator stays cheap and predictable; the `genloom`
+    /// command turns it on unless `--micro-batch N` is given. Ignored on wasm32 (no clock).
+    pub tune: bool,
 }
 
 impl Default for GeneratorOptions {
     fn default() -> Self {
-        GeneratorOptions { micro_batch: 8, threads: 1, max_cached_plans: 4, warm_up: true }
+        GeneratorOptions { micro_batch: 8, threads: 1, max_cached_plans: 4, warm_up: true, tune: false }
     }
 }
 
@@ -145,9 +150,12 @@ impl Generator {
             model.typed.clone(),
             model.batch_symbol.clone(),
             fixed,
-            options.max_cached_plans.max(1),
+            if options.tune { options.max_cached_plans.max(6) } else { options.max_cached_plans.max(1) },
         );
-        let generator = Generator { model, plans, options };
+        let mut generator = Generator { model, plans, options };
+        if generator.options.tune && fixed.is_none() {
+            generator.options.micro_batch = generator.fastest_micro_batch()?;
+        }
         if generator.options.warm_up {
             generator.plans.warm(generator.options.micro_batch)?;
             if fixed.is_none() && generator.options.micro_batch != 1 {
@@ -155,6 +163,40 @@ impl Generator {
             }
         }
         Ok(generator)
+    }
+
+    /// Times micro-batches 1, 2, 4, 8 and 16 (the best of three runs each, after one warm-up)
+    /// and returns the fastest per image. On wasm32, where there is no clock, returns the current one.
+    fn fastest_micro_batch(&self) -> Result<usize> {
+        #[cfg(target_arch = "wasm32")]
+        {
+            Ok(self.options.micro_batch)
+        }
+        #[cfg(not(target_arch = "wasm32"))]
+        {
+            let sig = self.signature();
+            let per_image = sig.image.values_per_image() as u64 * 4;
+            let mut best = (f64::INFINITY, self.options.micro_batch);
+            for mb in [1usize, 2, 4, 8, 16] {
+                if mb as u64 * per_image > self.model.limits().max_micro_batch_bytes {
+                    break;
+                }
+                let z = Latents::sample(sig.latent.dim, &SampleOptions::new(0, mb))?;
+                let labels = sig.label.as_ref().map(|_| vec![0i64; mb]);
+                let req = Checked { latents: &z, labels: labels.as_deref() };
+                self.run_chunk(&req, 0, mb)?;
+                let mut fastest = f64::INFINITY;
+                for _ in 0..3 {
+                    let t = std::time::Instant::now();
+                    self.run_chunk(&req, 0, mb)?;
+                    fastest = fastest.min(t.elapsed().as_secs_f64() / mb as f64);
+                }
+                if fastest < best.0 {
+                    best = (fastest, mb);
+                }
+            }
+            Ok(best.1)
+        }
     }
 
     /// Loads a model from a path with default options and builds its generator.

@@ -10,6 +10,7 @@ pub(crate) mod dt {
     pub const FLOAT: i32 = 1;
     pub const UINT8: i32 = 2;
     pub const INT8: i32 = 3;
+    pub const BOOL: i32 = 9;
     pub const INT32: i32 = 6;
     pub const INT64: i32 = 7;
     pub const FLOAT16: i32 = 10;
@@ -74,6 +75,8 @@ pub(crate) fn read_i64(t: &pb::TensorProto) -> Result<Vec<i64>> {
             r.chunks_exact(4).map(|b| i64::from(i32::from_le_bytes([b[0], b[1], b[2], b[3]]))).collect()
         }
         dt::INT8 if !r.is_empty() => r.iter().map(|&b| i64::from(b as i8)).collect(),
+        dt::BOOL if !r.is_empty() => r.iter().map(|&b| i64::from(b != 0)).collect(),
+        dt::BOOL => t.int32_data.iter().map(|&v| i64::from(v != 0)).collect(),
         dt::UINT8 if !r.is_empty() => r.iter().map(|&b| i64::from(b)).collect(),
         dt::INT32 | dt::INT8 | dt::UINT8 => t.int32_data.iter().map(|&v| i64::from(v)).collect(),
         other => {

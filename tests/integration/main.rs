@@ -4,6 +4,7 @@
 
 #![allow(clippy::unwrap_used)] // tests panic on failure by design
 
+mod check;
 mod convert;
 mod demo_models;
 mod interp;

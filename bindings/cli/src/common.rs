@@ -120,16 +120,25 @@ pub struct RunArgs {
     /// Worker threads for generation.
     #[arg(long, default_value_t = 1, value_name = "N")]
     pub threads: usize,
-    /// Images per inference call.
-    #[arg(long, default_value_t = 8, value_name = "N")]
-    pub micro_batch: usize,
+    /// Images per inference call, or `auto` to measure 1, 2, 4, 8 and 16 and keep the fastest.
+    #[arg(long, default_value = "auto", value_name = "N")]
+    pub micro_batch: String,
 }
 
 impl RunArgs {
     pub fn generator(&self, model: Model) -> CliResult<(Generator, f64)> {
         let mut o = GeneratorOptions::default();
         o.threads = self.threads;
-        o.micro_batch = self.micro_batch;
+        if self.micro_batch == "auto" {
+            o.tune = true;
+        } else {
+            o.micro_batch = self.micro_batch.parse().map_err(|_| {
+                usage(format!(
+                    "--micro-batch is `{}`, expected `auto` or a number of images",
+                    self.micro_batch
+                ))
+            })?;
+        }
         let t = Instant::now();
         let g = Generator::new(model, o)?;
         Ok((g, t.elapsed().as_secs_f64() * 1e3))

@@ -3,6 +3,7 @@
 //! Human output goes to stdout (or JSON with `--json`), progress bars and errors to stderr.
 //! Exit codes: 0 success, 1 a job that failed, 2 bad usage or unreadable input.
 
+mod bench_cmd;
 mod check_cmd;
 mod common;
 mod convert_cmd;
@@ -32,7 +33,13 @@ enum Command {
     Convert(convert_cmd::ConvertArgs),
     /// The release gate: structure, batch independence, determinism, finiteness, diversity, parity.
     Check(check_cmd::CheckArgs),
+    /// Measure load time, latency per micro-batch, throughput per thread count and memory.
+    Bench(bench_cmd::BenchArgs),
 }
+
+/// Counts heap bytes (current and peak) so that `bench` can report memory.
+#[global_allocator]
+static ALLOC: peak_alloc::PeakAlloc = peak_alloc::PeakAlloc;
 
 fn main() {
     let cli = match Cli::try_parse() {
@@ -49,6 +56,7 @@ fn main() {
         Command::Morph(a) => generate_cmds::morph(&a),
         Command::Convert(a) => convert_cmd::run(&a),
         Command::Check(a) => check_cmd::run(&a),
+        Command::Bench(a) => bench_cmd::run(&a, &ALLOC),
     };
     if let Err(Failure { code, error }) = result {
         // One line: the outer context and the chain of causes.

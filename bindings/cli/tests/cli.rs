@@ -256,3 +256,59 @@ fn convert_writes_exports_and_refuses_short_fidelity() {
     let o = genloom(&["convert", "--to", "int4"], d.path());
     assert_eq!(o.status.code(), Some(2));
 }
+
+#[test]
+fn check_exit_codes_and_json_schema() {
+    let d = tempfile::tempdir().unwrap();
+    let o = genloom(&["check", "--json", "--sheet", "sheet.png"], d.path());
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o.stderr));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["schema"], "genloom.check/1");
+    assert_eq!(v["failed"], 0);
+    let checks = v["checks"].as_array().unwrap();
+    assert_eq!(checks.len(), 12);
+    for c in checks {
+        for key in ["id", "status", "measured", "threshold", "detail"] {
+            assert!(c.get(key).is_some(), "{key} missing in {c}");
+        }
+    }
+    let sheet = image::open(d.path().join("sheet.png")).unwrap();
+    assert_eq!(sheet.width(), 8 * 64 + 9 * 2);
+    // A defect: exit 1, and the failing check is named on its line.
+    let o = genloom(&["check", &golden("defects/batch-stats.onnx")], d.path());
+    assert_eq!(o.status.code(), Some(1), "{}", text(&o.stderr));
+    assert!(text(&o.stdout).contains("FAIL  batch-independence"), "{}", text(&o.stdout));
+    assert!(text(&o.stdout).contains("do not ship"), "{}", text(&o.stdout));
+    // Unreadable: exit 2.
+    let o = genloom(&["check", "missing.onnx"], d.path());
+    assert_eq!(o.status.code(), Some(2), "{}", text(&o.stderr));
+}
+
+#[test]
+fn bench_reports_every_column() {
+    let d = tempfile::tempdir().unwrap();
+    let o = genloom(
+        &["bench", "--batch", "1,4", "--iters", "5", "--images", "16", "--threads", "1", "--json"],
+        d.path(),
+    );
+    assert!(o.status.success(), "{}", text(&o.stderr));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["schema"], "genloom.bench/1");
+    let row = &v["rows"][0];
+    for key in [
+        "file_bytes",
+        "load_ms",
+        "optimise_ms",
+        "batch1_p50_ms",
+        "best_micro_batch",
+        "throughput",
+        "peak_heap_load_bytes",
+        "steady_heap_bytes",
+    ] {
+        assert!(row.get(key).is_some(), "{key} missing");
+    }
+    assert!(
+        row["peak_heap_load_bytes"].as_u64().unwrap() > 1 << 20,
+        "the model's weights pass through the heap"
+    );
+}

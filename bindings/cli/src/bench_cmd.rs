@@ -1,0 +1,250 @@
+//! `genloom bench`: what each export costs here, in milliseconds and megabytes.
+
+use crate::common::{out, out_json, usage, CliResult};
+use clap::Args;
+use genloom::{Generator, GeneratorOptions, LoadOptions, Model, SampleOptions};
+use std::path::PathBuf;
+use std::time::Instant;
+
+/// Arguments of `bench`.
+#[derive(Debug, Args)]
+pub struct BenchArgs {
+    /// Models to measure (default: the built-in demo model). PSNR is against the first.
+    pub models: Vec<PathBuf>,
+    /// Micro-batches to try for the best per-image latency.
+    #[arg(long, default_value = "1,2,4,8,16", value_delimiter = ',')]
+    pub batch: Vec<usize>,
+    /// Thread counts for the throughput rows (default: 1 and all cores).
+    #[arg(long, value_delimiter = ',')]
+    pub threads: Vec<usize>,
+    /// Timed calls per latency figure.
+    #[arg(long, default_value_t = 40)]
+    pub iters: usize,
+    /// Images per throughput run.
+    #[arg(long, default_value_t = 256)]
+    pub images: usize,
+    /// Run with the load-time passes off, to see what they are worth.
+    #[arg(long)]
+    pub no_passes: bool,
+    /// Print JSON.
+    #[arg(long)]
+    pub json: bool,
+}
+
+#[derive(serde::Serialize)]
+struct Row {
+    model: String,
+    file_bytes: u64,
+    load_ms: f64,
+    optimise_ms: f64,
+    batch1_p50_ms: f64,
+    batch1_p90_ms: f64,
+    best_micro_batch: usize,
+    best_p50_ms_per_image: f64,
+    best_p90_ms_per_image: f64,
+    throughput: Vec<(usize, f64)>,
+    peak_heap_load_bytes: usize,
+    steady_heap_bytes: usize,
+    peak_heap_generate_bytes: usize,
+    resident_bytes: Option<u64>,
+    psnr_vs_first_db: Option<f64>,
+}
+
+#[derive(serde::Serialize)]
+struct Report {
+    schema: &'static str,
+    date_note: &'static str,
+    cores: usize,
+    passes: bool,
+    rows: Vec<Row>,
+}
+
+fn percentile(v: &mut [f64], p: f64) -> f64 {
+    v.sort_by(f64::total_cmp);
+    v[((v.len() - 1) as f64 * p).round() as usize]
+}
+
+fn resident() -> Option<u64> {
+    let s = std::fs::read_to_string("/proc/self/statm").ok()?;
+    let pages: u64 = s.split_whitespace().nth(1)?.parse().ok()?;
+    Some(pages * 4096)
+}
+
+pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
+    if a.iters == 0 || a.images == 0 || a.batch.is_empty() || a.batch.contains(&0) {
+        return Err(usage("--iters, --images and every --batch must be at least 1"));
+    }
+    let cores = std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1);
+    let threads: Vec<usize> = if a.threads.is_empty() {
+        if cores > 1 {
+            vec![1, cores]
+        } else {
+            vec![1]
+        }
+    } else {
+        a.threads.clone()
+    };
+    let mut load = LoadOptions::default();
+    if a.no_passes {
+        load.passes = genloom::PassOptions::none();
+    }
+    let names: Vec<Option<PathBuf>> =
+        if a.models.is_empty() { vec![None] } else { a.models.iter().cloned().map(Some).collect() };
+    let mut rows = vec![];
+    let mut first: Option<Model> = None;
+    for name in &names {
+        let label = name.as_ref().map(|p| p.display().to_string()).unwrap_or_else(|| "built-in tiles".into());
+        eprintln!("measuring {label} ...");
+        alloc.reset_peak_usage();
+        let before = alloc.current_usage();
+        let t = Instant::now();
+        let model = match name {
+            Some(p) => Model::from_path(p, &load),
+            None => Model::from_bytes(genloom::demo::TILES_ONNX, &load),
+        }
+        .map_err(|e| crate::common::Failure {
+            code: crate::common::exit_code(&e),
+            error: anyhow::Error::new(e).context(format!("cannot load {label}")),
+        })?;
+        let load_ms = t.elapsed().as_secs_f64() * 1e3;
+        let t = Instant::now();
+        let mut o = GeneratorOptions::default();
+        o.micro_batch = 1;
+        let g1 = Generator::new(model.clone(), o)?;
+        let optimise_ms = t.elapsed().as_secs_f64() * 1e3;
+        let peak_load = alloc.peak_usage().saturating_sub(before);
+        let steady = alloc.current_usage().saturating_sub(before);
+        let sig = model.signature().clone();
+        let labels_of =
+            |n: usize| sig.label.as_ref().map(|l| (0..n).map(|i| (i % l.classes) as i64).collect::<Vec<_>>());
+        // Batch-1 latency.
+        let one = g1.sample_latents(&SampleOptions::new(3, 1))?;
+        let l1 = labels_of(1);
+        for _ in 0..5 {
+            g1.generate(&one, l1.as_deref())?;
+        }
+        let mut times: Vec<f64> = (0..a.iters)
+            .map(|_| {
+                let t = Instant::now();
+                let r = g1.generate(&one, l1.as_deref());
+                (r, t.elapsed().as_secs_f64() * 1e3)
+            })
+            .map(|(r, ms)| r.map(|_| ms))
+            .collect::<Result<_, _>>()?;
+        let (b1_50, b1_90) = (percentile(&mut times, 0.5), percentile(&mut times, 0.9));
+        // Best micro-batch by median per-image time.
+        let mut best = (f64::INFINITY, 0.0, 1usize);
+        let mut peak_gen = 0usize;
+        for &mb in &a.batch {
+            let mut o = GeneratorOptions::default();
+            o.micro_batch = mb;
+            let g = Generator::new(model.clone(), o)?;
+            let z = g.sample_latents(&SampleOptions::new(4, mb))?;
+            let lab = labels_of(mb);
+            g.generate(&z, lab.as_deref())?;
+            alloc.reset_peak_usage();
+            let base = alloc.current_usage();
+            let iters = (a.iters / mb).max(5);
+            let mut t: Vec<f64> = vec![];
+            for _ in 0..iters {
+                let s = Instant::now();
+                g.generate(&z, lab.as_deref())?;
+                t.push(s.elapsed().as_secs_f64() * 1e3 / mb as f64);
+            }
+            peak_gen = peak_gen.max(alloc.peak_usage().saturating_sub(base));
+            let (p50, p90) = (percentile(&mut t, 0.5), percentile(&mut t, 0.9));
+            if p50 < best.0 {
+                best = (p50, p90, mb);
+            }
+        }
+        // Throughput per thread count at the best micro-batch.
+        let z = g1.sample_latents(&SampleOptions::new(5, a.images))?;
+        let lab = labels_of(a.images);
+        let mut throughput = vec![];
+        for &th in &threads {
+            let mut o = GeneratorOptions::default();
+            o.micro_batch = best.2;
+            o.threads = th;
+            let g = Generator::new(model.clone(), o)?;
+            g.generate(&z.slice(0..best.2.min(a.images))?, lab.as_ref().map(|l| &l[..best.2.min(a.images)]))?;
+            let s = Instant::now();
+            g.generate(&z, lab.as_deref())?;
+            throughput.push((th, a.images as f64 / s.elapsed().as_secs_f64()));
+        }
+        let psnr = match &first {
+            None => None,
+            Some(f) => genloom::convert::compare(f, &model, 2026, 32).ok().map(|x| x.psnr_db),
+        };
+        if first.is_none() {
+            first = Some(model.clone());
+        }
+        rows.push(Row {
+            model: label,
+            file_bytes: model.info().file_bytes,
+            load_ms,
+            optimise_ms,
+            batch1_p50_ms: b1_50,
+            batch1_p90_ms: b1_90,
+            best_micro_batch: best.2,
+            best_p50_ms_per_image: best.0,
+            best_p90_ms_per_image: best.1,
+            throughput,
+            peak_heap_load_bytes: peak_load,
+            steady_heap_bytes: steady,
+            peak_heap_generate_bytes: peak_gen,
+            resident_bytes: resident(),
+            psnr_vs_first_db: psnr,
+        });
+    }
+    let report = Report {
+        schema: "genloom.bench/1",
+        date_note: "figures are for this machine at the time of the run",
+        cores,
+        passes: !a.no_passes,
+        rows,
+    };
+    if a.json {
+        return out_json(&report);
+    }
+    let mib = |b: f64| b / f64::from(1 << 20);
+    let mut s = format!(
+        "{:<28} {:>8} {:>7} {:>7} {:>15} {:>22} {:>22} {:>16} {:>8}\n",
+        "model",
+        "file MiB",
+        "load ms",
+        "opt ms",
+        "batch 1 p50/p90",
+        "best mb: ms/img p50/p90",
+        "tiles/s by threads",
+        "heap MiB pk/st",
+        "PSNR dB"
+    );
+    for r in &report.rows {
+        let tp: Vec<String> = r.throughput.iter().map(|(t, v)| format!("{t}:{v:.0}")).collect();
+        let name: String = if r.model.len() > 28 {
+            format!("...{}", &r.model[r.model.len() - 25..])
+        } else {
+            r.model.clone()
+        };
+        s.push_str(&format!(
+            "{:<28} {:>8.2} {:>7.1} {:>7.1} {:>15} {:>22} {:>22} {:>16} {:>8}\n",
+            name,
+            mib(r.file_bytes as f64),
+            r.load_ms,
+            r.optimise_ms,
+            format!("{:.3}/{:.3}", r.batch1_p50_ms, r.batch1_p90_ms),
+            format!("{}: {:.3}/{:.3}", r.best_micro_batch, r.best_p50_ms_per_image, r.best_p90_ms_per_image),
+            tp.join(" "),
+            format!(
+                "{:.1}/{:.1}",
+                mib(r.peak_heap_load_bytes.max(r.peak_heap_generate_bytes) as f64),
+                mib(r.steady_heap_bytes as f64)
+            ),
+            r.psnr_vs_first_db
+                .map(|p| if p.is_infinite() { "inf".to_string() } else { format!("{p:.1}") })
+                .unwrap_or_else(|| "-".into()),
+        ));
+    }
+    out(&s);
+    Ok(())
+}
