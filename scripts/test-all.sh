@@ -56,4 +56,12 @@ step "cargo test (unit, integration, CLI, doc tests)"
 cargo test --workspace --all-targets
 cargo test --workspace --doc
 
+step "C ABI: C programs against the library, under valgrind and AddressSanitizer"
+bash scripts/test-c.sh
+
+if [ -f scripts/test-wasm.sh ]; then
+  step "WebAssembly: Node tests and a headless Chromium page"
+  bash scripts/test-wasm.sh
+fi
+
 step "done"

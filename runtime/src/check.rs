@@ -684,24 +684,20 @@ fn check_raw(raw: Raw, name: &str, load: &LoadOptions, options: &CheckOptions) -
     };
     training_mode(&proto, &mut r);
     let signature = model.as_ref().map(|m| m.signature().clone());
-    match &model {
-        Some(m) => {
-            if let Err(e) = run_checks(m, options, &mut r) {
-                let training = r.checks.iter().any(|c| c.id == "training-mode" && c.status == Status::Fail);
-                let done: Vec<String> = r.checks.iter().map(|c| c.id.clone()).collect();
-                if training {
-                    // tract refuses some training-mode nodes outright; that is the defect already named.
-                    for id in ALL.iter().filter(|id| !done.iter().any(|d| d == *id)) {
-                        r.skip(id, &format!("not run: the training-mode leftovers stop inference ({e})"));
-                    }
-                } else {
-                    let next =
-                        ALL.iter().find(|id| !done.iter().any(|d| d == *id)).copied().unwrap_or("batch");
-                    r.add(next, Status::Fail, "inference failed", "runs", e.to_string());
+    if let Some(m) = &model {
+        if let Err(e) = run_checks(m, options, &mut r) {
+            let training = r.checks.iter().any(|c| c.id == "training-mode" && c.status == Status::Fail);
+            let done: Vec<String> = r.checks.iter().map(|c| c.id.clone()).collect();
+            if training {
+                // tract refuses some training-mode nodes outright; that is the defect already named.
+                for id in ALL.iter().filter(|id| !done.iter().any(|d| d == *id)) {
+                    r.skip(id, &format!("not run: the training-mode leftovers stop inference ({e})"));
                 }
+            } else {
+                let next = ALL.iter().find(|id| !done.iter().any(|d| d == *id)).copied().unwrap_or("batch");
+                r.add(next, Status::Fail, "inference failed", "runs", e.to_string());
             }
         }
-        None => {}
     }
     for id in ALL {
         if !r.checks.iter().any(|c| c.id == id) {
@@ -1110,13 +1106,14 @@ pub fn sheet(model: &Model, seed: u64) -> Result<crate::pixels::Pixels> {
         tiles.extend(crate::pixels::all_pixels(&imgs, format)?.0);
     }
     let keys = Latents::sample(dim, &SampleOptions::new(seed.wrapping_add(100), 2))?;
-    let mut po = crate::latent::PathOptions::default();
-    po.steps = 7;
+    let po = crate::latent::PathOptions { steps: 7, ..Default::default() };
     let path = crate::latent::path(&keys, &po)?;
     let imgs = g.generate(&path, labels_for(&g, path.count()).as_deref())?;
     tiles.extend(crate::pixels::all_pixels(&imgs, format)?.0);
-    let mut go = crate::pixels::GridOptions::default();
-    go.columns = Some(8);
-    go.scale = if model.signature().image.width <= 64 { 2 } else { 1 };
+    let go = crate::pixels::GridOptions {
+        columns: Some(8),
+        scale: if model.signature().image.width <= 64 { 2 } else { 1 },
+        ..Default::default()
+    };
     crate::pixels::grid(&tiles, &go)
 }

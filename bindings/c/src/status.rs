@@ -1,0 +1,114 @@
+//! Status codes and the mapping from the runtime's errors to them.
+
+use genloom::Error;
+
+/// What a call did. `GENLOOM_STATUS_OK` is 0; every other value is a failure whose detail is in
+/// `genloom_last_error_message()`.
+///
+/// The numbers are part of the ABI: they never change and are never reused. New codes may be
+/// added at the end in later versions, so treat any unknown non-zero value as a failure (and
+/// `genloom_status_name()` returns `"GENLOOM_STATUS_UNKNOWN"` for it).
+#[repr(C)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub enum genloom_status {
+    /// Success.
+    Ok = 0,
+    /// A required pointer was NULL (or a buffer pointer was NULL with a non-zero length).
+    NullArgument = 1,
+    /// A value was out of range: an unknown enum value, a zero count, a latent buffer whose
+    /// length is not a multiple of the latent size, a label out of range, NaN in a latent, a
+    /// path that is not valid UTF-8 on a platform that needs it, a misaligned buffer...
+    InvalidArgument = 2,
+    /// An output buffer was too small; the size it needs was written to `*needed`.
+    BufferTooSmall = 3,
+    /// The model could not be loaded: not ONNX, malformed, or refused by tract.
+    LoadFailed = 4,
+    /// The model loaded but does not look like a supported generator (no latent input found,
+    /// unknown value range, ...).
+    Signature = 5,
+    /// Inference failed, or gave an output that does not match the signature.
+    InferenceFailed = 6,
+    /// The progress callback returned 0 and the work stopped; nothing was written.
+    Cancelled = 7,
+    /// A request went past a safety limit (model size, image count, micro-batch bytes).
+    Limit = 8,
+    /// A file could not be read, or an image could not be encoded.
+    Io = 9,
+    /// The option or feature is not available in this build (e.g. f16 compute).
+    Unsupported = 10,
+    /// A panic inside genloom was caught at the boundary. This is a bug in genloom: please report
+    /// it with the message. Free the handles the call used; do not keep using them.
+    Panic = 11,
+    /// An error the binding has no specific code for (a newer kind of runtime error).
+    Internal = 12,
+}
+
+impl genloom_status {
+    /// The status with this code, if this version knows it.
+    pub fn from_code(code: std::ffi::c_int) -> Option<genloom_status> {
+        use genloom_status::*;
+        const ALL: [genloom_status; 13] = [
+            Ok,
+            NullArgument,
+            InvalidArgument,
+            BufferTooSmall,
+            LoadFailed,
+            Signature,
+            InferenceFailed,
+            Cancelled,
+            Limit,
+            Io,
+            Unsupported,
+            Panic,
+            Internal,
+        ];
+        ALL.iter().copied().find(|s| *s as std::ffi::c_int == code)
+    }
+
+    /// The C name of the status, NUL-terminated.
+    pub(crate) fn c_name(self) -> &'static [u8] {
+        match self {
+            genloom_status::Ok => b"GENLOOM_STATUS_OK\0",
+            genloom_status::NullArgument => b"GENLOOM_STATUS_NULL_ARGUMENT\0",
+            genloom_status::InvalidArgument => b"GENLOOM_STATUS_INVALID_ARGUMENT\0",
+            genloom_status::BufferTooSmall => b"GENLOOM_STATUS_BUFFER_TOO_SMALL\0",
+            genloom_status::LoadFailed => b"GENLOOM_STATUS_LOAD_FAILED\0",
+            genloom_status::Signature => b"GENLOOM_STATUS_SIGNATURE\0",
+            genloom_status::InferenceFailed => b"GENLOOM_STATUS_INFERENCE_FAILED\0",
+            genloom_status::Cancelled => b"GENLOOM_STATUS_CANCELLED\0",
+            genloom_status::Limit => b"GENLOOM_STATUS_LIMIT\0",
+            genloom_status::Io => b"GENLOOM_STATUS_IO\0",
+            genloom_status::Unsupported => b"GENLOOM_STATUS_UNSUPPORTED\0",
+            genloom_status::Panic => b"GENLOOM_STATUS_PANIC\0",
+            genloom_status::Internal => b"GENLOOM_STATUS_INTERNAL\0",
+        }
+    }
+}
+
+/// Where a runtime error happened: tract's errors mean a failed load while opening and a
+/// failed inference afterwards.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum Stage {
+    Open,
+    Run,
+}
+
+/// The status for a runtime error.
+pub(crate) fn status_of(error: &Error, stage: Stage) -> genloom_status {
+    if matches!(error, Error::Cancelled { .. }) {
+        return genloom_status::Cancelled;
+    }
+    match error.group() {
+        "load" => genloom_status::LoadFailed,
+        "tract" => match stage {
+            Stage::Open => genloom_status::LoadFailed,
+            Stage::Run => genloom_status::InferenceFailed,
+        },
+        "signature" => genloom_status::Signature,
+        "argument" | "npy" => genloom_status::InvalidArgument,
+        "inference" => genloom_status::InferenceFailed,
+        "limits" => genloom_status::Limit,
+        "io" => genloom_status::Io,
+        _ => genloom_status::Internal,
+    }
+}
