@@ -43,6 +43,8 @@ struct Row {
     best_p50_ms_per_image: f64,
     best_p90_ms_per_image: f64,
     throughput: Vec<(usize, f64)>,
+    macs_per_image: Option<u64>,
+    best_gmacs_per_s: Option<f64>,
     peak_heap_load_bytes: usize,
     steady_heap_bytes: usize,
     peak_heap_generate_bytes: usize,
@@ -188,6 +190,11 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
             best_micro_batch: best.2,
             best_p50_ms_per_image: best.0,
             best_p90_ms_per_image: best.1,
+            best_gmacs_per_s: model
+                .info()
+                .macs_per_sample
+                .map(|m| m as f64 * throughput.iter().map(|t| t.1).fold(0.0, f64::max) / 1e9),
+            macs_per_image: model.info().macs_per_sample,
             throughput,
             peak_heap_load_bytes: peak_load,
             steady_heap_bytes: steady,
@@ -208,7 +215,7 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
     }
     let mib = |b: f64| b / f64::from(1 << 20);
     let mut s = format!(
-        "{:<28} {:>8} {:>7} {:>7} {:>15} {:>22} {:>22} {:>16} {:>8}\n",
+        "{:<28} {:>8} {:>7} {:>7} {:>15} {:>22} {:>22} {:>7} {:>16} {:>8}\n",
         "model",
         "file MiB",
         "load ms",
@@ -216,6 +223,7 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
         "batch 1 p50/p90",
         "best mb: ms/img p50/p90",
         "tiles/s by threads",
+        "GMAC/s",
         "heap MiB pk/st",
         "PSNR dB"
     );
@@ -227,7 +235,7 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
             r.model.clone()
         };
         s.push_str(&format!(
-            "{:<28} {:>8.2} {:>7.1} {:>7.1} {:>15} {:>22} {:>22} {:>16} {:>8}\n",
+            "{:<28} {:>8.2} {:>7.1} {:>7.1} {:>15} {:>22} {:>22} {:>7} {:>16} {:>8}\n",
             name,
             mib(r.file_bytes as f64),
             r.load_ms,
@@ -235,6 +243,7 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
             format!("{:.3}/{:.3}", r.batch1_p50_ms, r.batch1_p90_ms),
             format!("{}: {:.3}/{:.3}", r.best_micro_batch, r.best_p50_ms_per_image, r.best_p90_ms_per_image),
             tp.join(" "),
+            r.best_gmacs_per_s.map(|g| format!("{g:.1}")).unwrap_or_else(|| "-".into()),
             format!(
                 "{:.1}/{:.1}",
                 mib(r.peak_heap_load_bytes.max(r.peak_heap_generate_bytes) as f64),
