@@ -30,6 +30,8 @@ mod boundary;
 mod errors;
 mod generator;
 mod latent;
+#[cfg(test)]
+mod miri_checks;
 mod options;
 mod pixels;
 mod status;
