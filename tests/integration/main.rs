@@ -7,6 +7,7 @@
 mod check;
 mod convert;
 mod demo_models;
+mod hostile;
 mod interp;
 mod load_errors;
 mod npy_files;

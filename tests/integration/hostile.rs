@@ -1,0 +1,80 @@
+//! Hostile input and heavy use: absurd shapes stopped by limits before any allocation, a shared
+//! generator under many threads, memory limits per micro-batch.
+
+use genloom::{Error, Generator, GeneratorOptions, Latents, Limits, LoadOptions, Model, SampleOptions};
+use genloom_tests::golden;
+use prost::Message;
+use std::sync::{mpsc, Arc};
+use std::time::Duration;
+
+fn good() -> tract_onnx::pb::ModelProto {
+    tract_onnx::pb::ModelProto::decode(&std::fs::read(golden("models/nchw-tanh.onnx")).unwrap()[..]).unwrap()
+}
+
+#[test]
+fn a_100000_pixel_wide_output_is_refused_by_limits() {
+    // ConvTranspose with stride 33333: (4 - 1) * 33333 - 2 + 4 = 100001 pixels a side.
+    let mut p = good();
+    let g = p.graph.as_mut().unwrap();
+    let ct = g.node.iter_mut().find(|n| n.op_type == "ConvTranspose").unwrap();
+    for a in &mut ct.attribute {
+        if a.name == "strides" {
+            a.ints = vec![33333, 33333];
+        }
+    }
+    let t = std::time::Instant::now();
+    let e = Model::from_bytes(&p.encode_to_vec(), &LoadOptions::default()).unwrap_err();
+    assert!(matches!(e, Error::Limit { .. }), "{e}");
+    assert!(e.to_string().contains("pixels per image is 10000200001"), "{e}");
+    // Refused from shapes alone: no 40 GB buffer was ever made.
+    assert!(t.elapsed() < Duration::from_secs(20));
+}
+
+#[test]
+fn memory_per_micro_batch_and_image_counts_are_limited() {
+    let mut o = LoadOptions::default();
+    let mut l = Limits::default();
+    l.max_micro_batch_bytes = 3 * 8 * 8 * 4 * 2; // two images
+    l.max_images = 10;
+    o.limits = l;
+    let m = Model::from_path(golden("models/nchw-tanh.onnx"), &o).unwrap();
+    let mut go = GeneratorOptions::default();
+    go.micro_batch = 3;
+    let e = Generator::new(m.clone(), go).unwrap_err();
+    assert!(
+        e.to_string().contains("one micro-batch's output in bytes is 2304, over the limit of 1536"),
+        "{e}"
+    );
+    let mut go = GeneratorOptions::default();
+    go.micro_batch = 2;
+    let g = Generator::new(m, go).unwrap();
+    let e = g.sample_latents(&SampleOptions::new(1, 11)).unwrap_err();
+    assert!(e.to_string().contains("image count is 11, over the limit of 10"), "{e}");
+    let many = Latents::sample(16, &SampleOptions::new(1, 11)).unwrap();
+    assert!(matches!(g.generate(&many, None), Err(Error::Limit { .. })));
+}
+
+#[test]
+fn eight_threads_share_one_generator() {
+    let m = Model::from_path(golden("models/nchw-tanh.onnx"), &LoadOptions::default()).unwrap();
+    let mut o = GeneratorOptions::default();
+    o.micro_batch = 2;
+    let g = Arc::new(Generator::new(m, o).unwrap());
+    let latents: Vec<Latents> =
+        (0..8).map(|t| Latents::sample(16, &SampleOptions::new(t, 3)).unwrap()).collect();
+    let serial: Vec<Vec<f32>> = latents.iter().map(|l| g.generate(l, None).unwrap().data).collect();
+    let (tx, rx) = mpsc::channel();
+    for t in 0..8 {
+        let (g, l, want, tx) = (g.clone(), latents[t].clone(), serial[t].clone(), tx.clone());
+        std::thread::spawn(move || {
+            let ok = (0..200).all(|_| g.generate(&l, None).map(|r| r.data == want).unwrap_or(false));
+            let _ = tx.send((t, ok));
+        });
+    }
+    drop(tx);
+    for _ in 0..8 {
+        // A deadlock would stop the results from coming: bounded wait.
+        let (t, ok) = rx.recv_timeout(Duration::from_secs(120)).expect("a thread did not finish in 120 s");
+        assert!(ok, "thread {t} saw a result that differs from the serial one");
+    }
+}
