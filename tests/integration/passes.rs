@@ -127,3 +127,77 @@ fn identity_and_constant_passes_are_exact() {
     assert!(max_abs_diff(&on, &off) <= 1e-6, "passes changed the output by {}", max_abs_diff(&on, &off));
     assert_eq!(m.info().nodes_after_passes, 5, "only the original five ops remain");
 }
+
+fn bn_node(name: &str, input: &str, output: &str, c: usize, g: &mut pb::GraphProto) -> pb::NodeProto {
+    // Deterministic, non-trivial parameters.
+    let vals = |k: f32| (0..c).map(|i| k + (i % 7) as f32 * 0.1).collect::<Vec<f32>>();
+    for (suffix, v) in [("scale", vals(0.8)), ("bias", vals(-0.2)), ("mean", vals(0.05)), ("var", vals(0.5))]
+    {
+        let raw: Vec<u8> = v.iter().flat_map(|x| x.to_le_bytes()).collect();
+        g.initializer.push(pb::TensorProto {
+            name: format!("{name}.{suffix}"),
+            dims: vec![c as i64],
+            data_type: 1,
+            raw_data: raw,
+            ..Default::default()
+        });
+    }
+    pb::NodeProto {
+        name: name.into(),
+        op_type: "BatchNormalization".into(),
+        input: vec![
+            input.into(),
+            format!("{name}.scale"),
+            format!("{name}.bias"),
+            format!("{name}.mean"),
+            format!("{name}.var"),
+        ],
+        output: vec![output.into()],
+        ..Default::default()
+    }
+}
+
+#[test]
+fn legacy_demo_model_has_no_batchnorm_left() {
+    let m = Model::from_path(demo("tiles.onnx"), &LoadOptions::default()).unwrap();
+    let g = m.onnx().graph.as_ref().unwrap();
+    assert!(
+        g.node.iter().all(|n| n.op_type != "BatchNormalization"),
+        "BatchNormalization left after the passes"
+    );
+    assert_eq!(m.info().ops.get("BatchNormalization"), Some(&3), "the stored graph had three");
+}
+
+#[test]
+fn batchnorm_after_gemm_folds_and_after_relu_stays() {
+    // Judge: the same file run by tract with the passes off (BatchNormalization evaluated as is).
+    let latents = golden("models/nchw-tanh.latents.npy");
+    // 1. BN right after the Gemm ([N, 512]): folds into the Gemm, bias rewritten.
+    let mut p = decode(&golden("models/nchw-tanh.onnx"));
+    let g = p.graph.as_mut().unwrap();
+    let gemm_out = g.node[0].output[0].clone();
+    g.node[0].output[0] = "gemm_raw".into();
+    let bn = bn_node("bn_gemm", "gemm_raw", &gemm_out, 512, g);
+    g.node.insert(1, bn);
+    let bytes = p.encode_to_vec();
+    let (off, _) = run(&bytes, PassOptions::none(), &latents);
+    let (on, m) = run(&bytes, PassOptions::default(), &latents);
+    assert!(m.onnx().graph.as_ref().unwrap().node.iter().all(|n| n.op_type != "BatchNormalization"));
+    assert!(max_abs_diff(&on, &off) <= 1e-5, "Gemm fold differs by {}", max_abs_diff(&on, &off));
+    // 2. BN after the Relu: nothing to fold into, so it stays and the output is unchanged.
+    let mut p = decode(&golden("models/nchw-tanh.onnx"));
+    let g = p.graph.as_mut().unwrap();
+    let relu = g.node.iter().position(|n| n.op_type == "Relu").unwrap();
+    let relu_out = g.node[relu].output[0].clone();
+    g.node[relu].output[0] = "relu_raw".into();
+    let bn = bn_node("bn_relu", "relu_raw", &relu_out, 32, g);
+    g.node.insert(relu + 1, bn);
+    let bytes = p.encode_to_vec();
+    let (off, _) = run(&bytes, PassOptions::none(), &latents);
+    let (on, m) = run(&bytes, PassOptions::default(), &latents);
+    assert_eq!(
+        m.onnx().graph.as_ref().unwrap().node.iter().filter(|n| n.op_type == "BatchNormalization").count(),
+        1
+    );
+    assert!(max_abs_diff(&on, &off) <= 1e-6);
+}
