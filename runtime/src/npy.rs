@@ -112,7 +112,7 @@ pub fn parse(bytes: &[u8], what: &str) -> Result<NpyArray> {
         .ok_or_else(|| err(what, format!("the shape {shape:?} is too large")))?;
     let body = &bytes[end..];
     let (kind, size) = match descr.get(1..) {
-        Some(k) if !k.is_empty() => (k, k[1..].parse::<usize>().unwrap_or(0)),
+        Some(k) if !k.is_empty() => (k, k.get(1..).and_then(|n| n.parse::<usize>().ok()).unwrap_or(0)),
         _ => return Err(err(what, format!("element type `{descr}` is not understood"))),
     };
     let little = match descr.as_bytes()[0] {
@@ -349,6 +349,12 @@ mod tests {
         let b = to_bytes_f32(&[2, 3], &[0.0; 6]);
         let e = parse(&b[..b.len() - 4], "x.npy").unwrap_err().to_string();
         assert!(e.contains("needs 24 bytes of data, the file holds 20"), "{e}");
+        // A multi-byte character in the type (found by fuzzing) is an error, not a panic.
+        let mut odd = b"\x93NUMPY\x01\x00".to_vec();
+        let h = "{'descr': '<\u{e9}4', 'fortran_order': False, 'shape': (1,), }\n";
+        odd.extend_from_slice(&(h.len() as u16).to_le_bytes());
+        odd.extend_from_slice(h.as_bytes());
+        assert!(parse(&odd, "x.npy").is_err());
         let e = parse(b"hello world", "x.npy").unwrap_err().to_string();
         assert!(e.contains("not an NPY file"), "{e}");
         let e = parse(&b, "x.npy").unwrap().into_latents(4, "x.npy").unwrap_err().to_string();

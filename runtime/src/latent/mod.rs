@@ -150,6 +150,15 @@ impl SampleOptions {
             }
             check_finite(centre, dim)?;
         }
+        // The NumPy stream is sequential: skipping to `first_index` draws every value before it.
+        const MAX_SKIP: u64 = 100_000_000;
+        if self.mode == RngMode::NumpyCompatible && self.first_index.saturating_mul(dim as u64) > MAX_SKIP {
+            return Err(Error::invalid(
+                "first index",
+                self.first_index,
+                format!("at most {} in NumPy-compatible mode for {dim}-value latents (the stream is drawn in order)", MAX_SKIP / dim as u64),
+            ));
+        }
         if self.mode == RngMode::NumpyCompatible && self.seed > u64::from(u32::MAX) {
             return Err(Error::invalid(
                 "seed",
@@ -379,6 +388,13 @@ mod tests {
         )
         .unwrap_err();
         assert!(e.to_string().contains("4294967295"), "{e}");
+        // Found by fuzzing: a huge first index in NumPy mode used to draw forever.
+        let e = Latents::sample(
+            1,
+            &SampleOptions { mode: RngMode::NumpyCompatible, first_index: u64::MAX, ..Default::default() },
+        )
+        .unwrap_err();
+        assert!(e.to_string().contains("first index"), "{e}");
         let e = Latents::new(4, vec![0.0, 1.0, f32::NAN, 0.0]).unwrap_err();
         assert!(e.to_string().contains("latent 0 has a non-finite value (NaN) at component 2"), "{e}");
     }
