@@ -3,7 +3,8 @@
 # target and wasm-bindgen-cli (through build.sh), the npm tools (`npm ci`: playwright-core,
 # binaryen), and Debian's chromium. Steps:
 #   1. build.sh: the package for pages (pkg-web/) and for Node (pkg-node/), simd128, wasm-opt;
-#   2. clippy of the crate for wasm32 (the native clippy is part of scripts/test-all.sh);
+#   2. clippy of the crate, native (all targets) and for wasm32 (bindings/wasm is its own
+#      workspace, outside the root's clippy);
 #   3. the crate's native unit tests;
 #   4. native genloom writes what the JS tests expect (target/wasm-golden/golden.json);
 #   5. Node's test runner: the package against native, errors, memory; the demo page in
@@ -38,15 +39,17 @@ fi
 step "build the package (bindings/wasm/build.sh)"
 bash "$wasm/build.sh"
 
+# The crate is its own workspace: its cargo commands run from its folder (.cargo/config.toml
+# there shares target/ and sets simd128 for wasm32).
 if [ "${GENLOOM_WASM_CLIPPY:-1}" != "0" ]; then
-  step "cargo clippy for wasm32 (warnings are errors)"
-  cargo clippy -p genloom-wasm --lib --target wasm32-unknown-unknown --quiet \
-    --config 'target.wasm32-unknown-unknown.rustflags=["-C", "target-feature=+simd128"]' -- -D warnings
+  step "cargo clippy, native and wasm32 (warnings are errors)"
+  (cd "$wasm" && cargo clippy --all-targets --quiet -- -D warnings)
+  (cd "$wasm" && cargo clippy --lib --target wasm32-unknown-unknown --quiet -- -D warnings)
 fi
 
 step "the crate's native unit tests"
 log=$(mktemp)
-if cargo test -p genloom-wasm --lib 2>&1 | tee "$log"; then :; else failed=$((failed + 1)); fi
+if (cd "$wasm" && cargo test --lib 2>&1) | tee "$log"; then :; else failed=$((failed + 1)); fi
 read -r p f < <(sed -n 's/^test result: .* \([0-9]*\) passed; \([0-9]*\) failed.*/\1 \2/p' "$log" | awk '{p+=$1; f+=$2} END {print p+0, f+0}')
 passed=$((passed + p))
 failed=$((failed + f))
@@ -54,7 +57,7 @@ rm -f "$log"
 
 step "native expectations (target/wasm-golden/golden.json)"
 golden="$root/target/wasm-golden/golden.json"
-cargo run --quiet -p genloom-wasm --example wasm-golden -- "$golden"
+(cd "$wasm" && cargo run --quiet --example wasm-golden -- "$golden")
 export GENLOOM_WASM_GOLDEN=$golden
 
 step "node --test: package vs native, errors, memory, the page in Chromium"

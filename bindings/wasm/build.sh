@@ -5,15 +5,15 @@
 # Both are gitignored. Installs what is missing: the wasm32 target, `wasm-bindgen-cli` at the
 # version pinned in Cargo.toml, and (through `npm ci`) binaryen's wasm-opt.
 #
-# The wasm build uses a size profile passed on the command line (the root Cargo.toml's profiles
-# are shared by the whole workspace) and `simd128`, without which tract has no wasm kernels.
+# The wasm build uses the crate's own `wasm` profile (opt-level "s", fat LTO, one codegen unit,
+# panic=abort; the crate is its own workspace) and `simd128` (from .cargo/config.toml), without
+# which tract has no wasm kernels.
 # Environment: GENLOOM_WASM_OPT=0 skips wasm-opt; GENLOOM_WASM_OPT_LEVEL (default -Oz) picks
-# its level; GENLOOM_WASM_PROFILE_OPT (default s) is rustc's opt-level (0-3, s or z). The
-# figures behind the defaults are in bindings/wasm/README.md.
+# its level; GENLOOM_WASM_PROFILE_OPT (0-3, s or z) overrides rustc's opt-level. The figures
+# behind the defaults are in bindings/wasm/README.md.
 set -euo pipefail
 here=$(cd "$(dirname "$0")" && pwd)
 root=$(cd "$here/../.." && pwd)
-cd "$root"
 
 want=$(sed -n 's/^wasm-bindgen = "=\(.*\)"/\1/p' "$here/Cargo.toml")
 [ -n "$want" ] || { echo "build.sh: cannot read the pinned wasm-bindgen version from Cargo.toml" >&2; exit 1; }
@@ -31,31 +31,24 @@ if [ "$have" != "$want" ]; then
     || cargo install --version "$want" wasm-bindgen-cli
 fi
 
-opt=${GENLOOM_WASM_PROFILE_OPT:-s}
-case "$opt" in
-  [0-3]) optv=$opt ;;
-  s | z) optv="\"$opt\"" ;;
-  *) echo "build.sh: GENLOOM_WASM_PROFILE_OPT is '$opt', expected 0-3, s or z" >&2; exit 1 ;;
-esac
-profile=(
-  --config 'profile.wasm.inherits="release"'
-  --config "profile.wasm.opt-level=$optv"
-  --config 'profile.wasm.lto="fat"'
-  --config 'profile.wasm.codegen-units=1'
-  --config 'profile.wasm.panic="abort"'
-  --config 'profile.wasm.debug=false'
-  --config 'profile.wasm.incremental=false'
-)
-# An explicit RUSTFLAGS replaces target rustflags from config, so add simd128 to it instead.
+# Cargo reads .cargo/config.toml (target dir, simd128) from the folder it runs in.
+cd "$here"
+profile=()
+if [ -n "${GENLOOM_WASM_PROFILE_OPT:-}" ]; then
+  case "$GENLOOM_WASM_PROFILE_OPT" in
+    [0-3]) optv=$GENLOOM_WASM_PROFILE_OPT ;;
+    s | z) optv="\"$GENLOOM_WASM_PROFILE_OPT\"" ;;
+    *) echo "build.sh: GENLOOM_WASM_PROFILE_OPT is '$GENLOOM_WASM_PROFILE_OPT', expected 0-3, s or z" >&2; exit 1 ;;
+  esac
+  profile=(--config "profile.wasm.opt-level=$optv")
+fi
+# An explicit RUSTFLAGS replaces the target rustflags of .cargo/config.toml: add simd128 to it.
 if [ -n "${RUSTFLAGS:-}" ]; then
   export RUSTFLAGS="$RUSTFLAGS -C target-feature=+simd128"
-  flags=()
-else
-  flags=(--config 'target.wasm32-unknown-unknown.rustflags=["-C", "target-feature=+simd128"]')
 fi
 
-echo "== cargo build -p genloom-wasm --target wasm32-unknown-unknown (profile wasm: opt-level $opt, fat LTO, simd128)"
-cargo build -p genloom-wasm --lib --target wasm32-unknown-unknown --profile wasm "${profile[@]}" "${flags[@]}"
+echo "== cargo build --target wasm32-unknown-unknown --profile wasm ${profile[*]:-} (simd128)"
+cargo build --lib --target wasm32-unknown-unknown --profile wasm "${profile[@]}"
 raw="$root/target/wasm32-unknown-unknown/wasm/genloom_wasm.wasm"
 [ -f "$raw" ] || { echo "build.sh: $raw was not written" >&2; exit 1; }
 

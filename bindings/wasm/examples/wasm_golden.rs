@@ -2,7 +2,7 @@
 //! compare the WebAssembly package with native Rust on this machine, with the demo models as
 //! they are now (their weights may be retrained: nothing here is committed).
 //!
-//! `cargo run -p genloom-wasm --example wasm-golden -- OUT.json [--bench]`
+//! `cargo run --example wasm-golden -- OUT.json [--bench]`, from bindings/wasm (its own workspace).
 //!
 //! OUT.json holds, per case, the sampling options, the latents as f32 bit patterns, the RGBA
 //! pixels (base64) and the float output (f32 bits, base64) of each demo model; plus the path
