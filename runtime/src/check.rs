@@ -487,7 +487,7 @@ fn training_mode(proto: &pb::ModelProto, r: &mut Recorder) {
             }
             "Dropout" => {
                 if let Some(t) = n.input.get(2).filter(|s| !s.is_empty()) {
-                    match consts.get(t).and_then(|c| crate::graph::read_i64(c).ok()) {
+                    match consts.get(t.as_str()).and_then(|c| crate::graph::read_i64(c).ok()) {
                         Some(v) if v.first().copied().unwrap_or(0) != 0 => found.push(format!(
                             "{} has training_mode = true (drops values at random)",
                             node_label(n)
@@ -571,39 +571,7 @@ fn hidden_non_finite(model: &Model, latents: &Latents, labels: Option<&[i64]>) -
     let Some(&pre) = probe.node(out.node).inputs.first() else { return Ok(0.0) };
     probe.select_output_outlets(&[pre]).map_err(|e| Error::tract("expose the pre-activation tensor", e))?;
     let plan = crate::model::guard("optimise the probe", || probe.into_optimized()?.into_runnable())?;
-    let sig = model.signature();
-    let mut inputs: TVec<TValue> = tvec![];
-    for role in &model.input_order {
-        let t = match role {
-            crate::model::InputRole::Latent => {
-                let mut shape = vec![n, sig.latent.dim];
-                if sig.latent.layout == crate::signature::LatentLayout::Spatial {
-                    shape.extend([1, 1]);
-                }
-                Tensor::from_shape(&shape, latents.as_slice())
-            }
-            crate::model::InputRole::Label => {
-                let l =
-                    sig.label.as_ref().ok_or_else(|| Error::Labels { reason: "no label input".into() })?;
-                let ls = labels.ok_or_else(|| Error::Labels { reason: "labels needed".into() })?;
-                match l.kind {
-                    crate::signature::LabelKind::Index if l.int32 => {
-                        Tensor::from_shape(&[n], &ls.iter().map(|&v| v as i32).collect::<Vec<_>>())
-                    }
-                    crate::signature::LabelKind::Index => Tensor::from_shape(&[n], ls),
-                    crate::signature::LabelKind::OneHot => {
-                        let mut v = vec![0f32; n * l.classes];
-                        for (i, &c) in ls.iter().enumerate() {
-                            v[i * l.classes + c as usize] = 1.0;
-                        }
-                        Tensor::from_shape(&[n, l.classes], &v)
-                    }
-                }
-            }
-        }
-        .map_err(|e| Error::tract("build the probe inputs", e))?;
-        inputs.push(t.into_tvalue());
-    }
+    let inputs = crate::generate::input_values(model, latents.as_slice(), labels, n)?;
     let outs = crate::model::guard("run the probe", || plan.run(inputs))?;
     let t = outs[0].cast_to::<f32>().map_err(|e| Error::tract("read the probe", e))?;
     let view = t.try_as_plain_ram().map_err(|e| Error::tract("read the probe", e))?;

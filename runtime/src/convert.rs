@@ -26,7 +26,6 @@ use crate::metrics::Fidelity;
 use crate::model::{LoadOptions, Model};
 use crate::passes::PassResult;
 use crate::{Generator, GeneratorOptions, SampleOptions};
-use sha2::{Digest, Sha256};
 use std::collections::BTreeMap;
 use tract_onnx::pb;
 
@@ -549,11 +548,6 @@ pub fn compare(reference: &Model, other: &Model, seed: u64, count: usize) -> Res
     let ia = ga.generate(&latents, labels.as_deref())?;
     let ib = gb.generate(&latents, labels.as_deref())?;
     crate::metrics::fidelity(&ia, &ib)
-}
-
-/// SHA-256 (hex) of bytes.
-pub fn sha256_hex(bytes: &[u8]) -> String {
-    Sha256::digest(bytes).iter().map(|b| format!("{b:02x}")).collect()
 }
 
 #[cfg(test)]

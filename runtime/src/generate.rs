@@ -403,46 +403,9 @@ impl Generator {
         for i in 0..batch {
             z.extend_from_slice(req.latents.row(s + i.min(n - 1)));
         }
-        let mut inputs: TVec<TValue> = tvec![];
-        for role in &self.model.input_order {
-            let t = match role {
-                InputRole::Latent => {
-                    let shape: Vec<usize> = match sig.latent.layout {
-                        crate::signature::LatentLayout::Flat => vec![batch, dim],
-                        crate::signature::LatentLayout::Spatial => vec![batch, dim, 1, 1],
-                    };
-                    Tensor::from_shape(&shape, &z).map_err(|e| Error::tract("build the latent tensor", e))?
-                }
-                InputRole::Label => {
-                    let l = sig.label.as_ref().ok_or_else(|| Error::Labels {
-                        reason: "internal: label role without label".into(),
-                    })?;
-                    let ls = req
-                        .labels
-                        .ok_or_else(|| Error::Labels { reason: "internal: labels missing".into() })?;
-                    let pick = |i: usize| ls[s + i.min(n - 1)];
-                    match l.kind {
-                        LabelKind::Index if l.int32 => {
-                            let v: Vec<i32> = (0..batch).map(|i| pick(i) as i32).collect();
-                            Tensor::from_shape(&[batch], &v)
-                        }
-                        LabelKind::Index => {
-                            let v: Vec<i64> = (0..batch).map(pick).collect();
-                            Tensor::from_shape(&[batch], &v)
-                        }
-                        LabelKind::OneHot => {
-                            let mut v = vec![0f32; batch * l.classes];
-                            for i in 0..batch {
-                                v[i * l.classes + pick(i) as usize] = 1.0;
-                            }
-                            Tensor::from_shape(&[batch, l.classes], &v)
-                        }
-                    }
-                    .map_err(|e| Error::tract("build the label tensor", e))?
-                }
-            };
-            inputs.push(t.into_tvalue());
-        }
+        let labels: Option<Vec<i64>> =
+            req.labels.map(|ls| (0..batch).map(|i| ls[s + i.min(n - 1)]).collect());
+        let inputs = input_values(&self.model, &z, labels.as_deref(), batch)?;
         let plan = self.plans.plan_for(batch)?;
         let outputs = crate::model::guard(format!("run a batch of {batch}"), || plan.run(inputs))?;
         let out = outputs.get(self.model.output_index).ok_or_else(|| Error::Output {
@@ -465,6 +428,55 @@ impl Generator {
         }
         Ok(values[..n * per].to_vec())
     }
+}
+
+/// The tract inputs for `batch` latents (row-major `z`) and their labels, in the model's input
+/// order and shapes: `[B, Z]` or `[B, Z, 1, 1]` latents; int64 or int32 `[B]` indices or
+/// float `[B, K]` one-hot rows. Labels must already be checked against the class count.
+pub(crate) fn input_values(
+    model: &Model,
+    z: &[f32],
+    labels: Option<&[i64]>,
+    batch: usize,
+) -> Result<TVec<TValue>> {
+    let sig = model.signature();
+    let dim = sig.latent.dim;
+    let mut inputs: TVec<TValue> = tvec![];
+    for role in &model.input_order {
+        let t = match role {
+            InputRole::Latent => {
+                let shape: Vec<usize> = match sig.latent.layout {
+                    crate::signature::LatentLayout::Flat => vec![batch, dim],
+                    crate::signature::LatentLayout::Spatial => vec![batch, dim, 1, 1],
+                };
+                Tensor::from_shape(&shape, z).map_err(|e| Error::tract("build the latent tensor", e))?
+            }
+            InputRole::Label => {
+                let l = sig
+                    .label
+                    .as_ref()
+                    .ok_or_else(|| Error::Labels { reason: "internal: label role without label".into() })?;
+                let ls = labels.ok_or_else(|| Error::Labels { reason: "internal: labels missing".into() })?;
+                match l.kind {
+                    LabelKind::Index if l.int32 => {
+                        let v: Vec<i32> = ls.iter().map(|&c| c as i32).collect();
+                        Tensor::from_shape(&[batch], &v)
+                    }
+                    LabelKind::Index => Tensor::from_shape(&[batch], ls),
+                    LabelKind::OneHot => {
+                        let mut v = vec![0f32; batch * l.classes];
+                        for (i, &c) in ls.iter().enumerate() {
+                            v[i * l.classes + c as usize] = 1.0;
+                        }
+                        Tensor::from_shape(&[batch, l.classes], &v)
+                    }
+                }
+                .map_err(|e| Error::tract("build the label tensor", e))?
+            }
+        };
+        inputs.push(t.into_tvalue());
+    }
+    Ok(inputs)
 }
 
 #[cfg(test)]

@@ -144,21 +144,29 @@ pub(crate) fn float_attr(name: &str, v: f32) -> pb::AttributeProto {
     pb::AttributeProto { name: name.into(), r#type: 1, f: v, ..Default::default() }
 }
 
-/// Constant values of the graph by name: initializers and the outputs of `Constant` nodes with a
-/// `value` tensor.
-pub(crate) fn constants(g: &pb::GraphProto) -> HashMap<String, pb::TensorProto> {
-    let mut m: HashMap<String, pb::TensorProto> =
-        g.initializer.iter().map(|t| (t.name.clone(), t.clone())).collect();
+/// Constant values of the graph by name, borrowed (weights are never copied): initializers and
+/// the `value` tensors of `Constant` nodes, keyed by the node's output.
+pub(crate) fn constants(g: &pb::GraphProto) -> HashMap<&str, &pb::TensorProto> {
+    let mut m: HashMap<&str, &pb::TensorProto> = g.initializer.iter().map(|t| (t.name.as_str(), t)).collect();
     for n in &g.node {
         if n.op_type == "Constant" {
             if let (Some(out), Some(t)) = (n.output.first(), attr(n, "value").and_then(|a| a.t.as_ref())) {
-                let mut t = t.clone();
-                t.name = out.clone();
-                m.insert(out.clone(), t);
+                m.insert(out.as_str(), t);
             }
         }
     }
     m
+}
+
+/// The value of a constant tensor that holds exactly one number, of any numeric type.
+pub(crate) fn scalar(t: &pb::TensorProto) -> Option<f64> {
+    if numel(t) != 1 {
+        return None;
+    }
+    match t.data_type {
+        dt::FLOAT | dt::FLOAT16 | dt::DOUBLE => read_f32(t).ok().map(|v| f64::from(v[0])),
+        _ => read_i64(t).ok().map(|v| v[0] as f64),
+    }
 }
 
 /// How many node inputs and graph outputs read each value.

@@ -221,6 +221,13 @@ pub fn to_bytes_f32(shape: &[usize], values: &[f32]) -> Vec<u8> {
     out
 }
 
+/// NPY v1.0 bytes of a uint8 array (image stacks, for NumPy-side tools).
+pub fn to_bytes_u8(shape: &[usize], values: &[u8]) -> Vec<u8> {
+    let mut out = header("|u1", shape);
+    out.extend_from_slice(values);
+    out
+}
+
 /// NPY v1.0 bytes of an int64 array.
 pub fn to_bytes_i64(shape: &[usize], values: &[i64]) -> Vec<u8> {
     let mut out = header("<i8", shape);

@@ -123,47 +123,63 @@ fn bypass(g: &mut pb::GraphProto, idx: usize, inp: &str, out: &str) -> bool {
 }
 
 fn drop_identity(g: &mut pb::GraphProto) -> Result<Vec<String>> {
+    // Decide first (reading the graph once), then rewrite.
+    let removable: Vec<String> = {
+        let consts = graph::constants(g);
+        let shapes = value_shapes(g);
+        let uses = graph::use_counts(g);
+        g.node
+            .iter()
+            .filter(|n| identity_like(n, &consts, &shapes, &uses))
+            .filter_map(|n| n.output.first().cloned())
+            .collect()
+    };
     let mut changes = vec![];
-    let consts = graph::constants(g);
-    let shapes = value_shapes(g);
-    let mut i = 0;
-    while i < g.node.len() {
-        let n = g.node[i].clone();
-        let removable = match n.op_type.as_str() {
-            "Identity" => true,
-            "Dropout" => {
-                let mask_read =
-                    n.output.get(1).is_some_and(|m| !m.is_empty() && graph::use_counts(g).contains_key(m));
-                let training = n.input.get(2).filter(|s| !s.is_empty()).map(|s| {
-                    consts.get(s).and_then(|t| graph::read_i64(t).ok()).map(|v| v.first() == Some(&1))
-                });
-                // Training mode given by a non-constant input: leave it for the release gate.
-                !mask_read && matches!(training, None | Some(Some(false)))
-            }
-            "Reshape" => {
-                let target = n.input.get(1).and_then(|s| consts.get(s)).and_then(|t| graph::read_i64(t).ok());
-                let input = n.input.first().and_then(|s| shapes.get(s));
-                match (target, input) {
-                    (Some(t), Some(shape)) => {
-                        t.len() == shape.len()
-                            && t.iter().zip(shape).all(|(&a, &b)| a > 0 && b == Some(a as usize))
-                    }
-                    _ => false,
-                }
-            }
-            _ => false,
-        };
-        let (Some(inp), Some(out)) = (n.input.first().cloned(), n.output.first().cloned()) else {
-            i += 1;
-            continue;
-        };
-        if removable && bypass(g, i, &inp, &out) {
-            changes.push(format!("{} `{}` removed", n.op_type, n.name));
-        } else {
-            i += 1;
+    for out in removable {
+        let Some(i) = g.node.iter().position(|n| n.output.first() == Some(&out)) else { continue };
+        let Some(inp) = g.node[i].input.first().cloned() else { continue };
+        let (op, name) = (g.node[i].op_type.clone(), g.node[i].name.clone());
+        if bypass(g, i, &inp, &out) {
+            changes.push(format!("{op} `{name}` removed"));
         }
     }
     Ok(changes)
+}
+
+/// Identity, inference-form Dropout (no mask read, training mode absent or constant false), or
+/// Reshape to the shape its input already has.
+fn identity_like(
+    n: &pb::NodeProto,
+    consts: &HashMap<&str, &pb::TensorProto>,
+    shapes: &HashMap<String, Vec<Option<usize>>>,
+    uses: &HashMap<String, usize>,
+) -> bool {
+    if n.input.is_empty() || n.output.is_empty() {
+        return false;
+    }
+    match n.op_type.as_str() {
+        "Identity" => true,
+        "Dropout" => {
+            let mask_read = n.output.get(1).is_some_and(|m| !m.is_empty() && uses.contains_key(m));
+            let training = n.input.get(2).filter(|s| !s.is_empty()).map(|s| {
+                consts.get(s.as_str()).and_then(|t| graph::read_i64(t).ok()).map(|v| v.first() == Some(&1))
+            });
+            // Training mode given by a non-constant input: leave it for the release gate.
+            !mask_read && matches!(training, None | Some(Some(false)))
+        }
+        "Reshape" => {
+            let target =
+                n.input.get(1).and_then(|s| consts.get(s.as_str())).and_then(|t| graph::read_i64(t).ok());
+            match (target, shapes.get(&n.input[0])) {
+                (Some(t), Some(shape)) => {
+                    t.len() == shape.len()
+                        && t.iter().zip(shape).all(|(&a, &b)| a > 0 && b == Some(a as usize))
+                }
+                _ => false,
+            }
+        }
+        _ => false,
+    }
 }
 
 /// Static shapes of values where the graph states them (graph inputs, value_info, initializers).
@@ -345,8 +361,11 @@ fn fold_constants(g: &mut pb::GraphProto) -> Result<Vec<String>> {
             if n.input.is_empty() || n.output.len() != 1 || is_graph_io(g, &n.output[0]) {
                 continue;
             }
-            let inputs: Vec<Option<&pb::TensorProto>> =
-                n.input.iter().map(|s| if s.is_empty() { None } else { consts.get(s) }).collect();
+            let inputs: Vec<Option<&pb::TensorProto>> = n
+                .input
+                .iter()
+                .map(|s| if s.is_empty() { None } else { consts.get(s.as_str()).copied() })
+                .collect();
             let all_const = n.input.iter().zip(&inputs).all(|(s, t)| s.is_empty() || t.is_some());
             if !all_const {
                 continue;
@@ -389,9 +408,9 @@ fn fold_batchnorm(g: &mut pb::GraphProto) -> Result<Vec<String>> {
                 continue;
             }
             let params: Option<Vec<&pb::TensorProto>> =
-                bn.input[1..5].iter().map(|s| consts.get(s)).collect();
-            let Some(w) = layer.input.get(1).and_then(|s| consts.get(s)) else { continue };
-            let bias = layer.input.get(2).filter(|s| !s.is_empty()).map(|s| consts.get(s));
+                bn.input[1..5].iter().map(|s| consts.get(s.as_str()).copied()).collect();
+            let Some(w) = layer.input.get(1).and_then(|s| consts.get(s.as_str()).copied()) else { continue };
+            let bias = layer.input.get(2).filter(|s| !s.is_empty()).map(|s| consts.get(s.as_str()).copied());
             if matches!(bias, Some(None)) {
                 continue; // a bias computed at run time
             }

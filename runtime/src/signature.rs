@@ -17,7 +17,6 @@
 //! [`SignatureOverrides`] settles the rest.
 
 use crate::error::{Error, Result};
-use std::collections::HashMap;
 use tract_onnx::pb;
 use tract_onnx::prelude::{TDim, ToDim};
 use tract_onnx::tract_core::internal::DimLike;
@@ -543,73 +542,8 @@ fn label_input(graph: &pb::GraphProto, d: &InputDesc, ov: &SignatureOverrides) -
     }
 }
 
-/// Constant tensors by name: initializers and Constant nodes' values.
-fn constants(graph: &pb::GraphProto) -> HashMap<&str, &pb::TensorProto> {
-    let mut m: HashMap<&str, &pb::TensorProto> =
-        graph.initializer.iter().map(|t| (t.name.as_str(), t)).collect();
-    for n in &graph.node {
-        if n.op_type == "Constant" {
-            if let (Some(out), Some(t)) =
-                (n.output.first(), n.attribute.iter().find(|a| a.name == "value").and_then(|a| a.t.as_ref()))
-            {
-                m.insert(out.as_str(), t);
-            }
-        }
-    }
-    m
-}
-
-/// The scalar value of a constant tensor, if it holds exactly one number.
-fn scalar(t: &pb::TensorProto) -> Option<f64> {
-    let n: i64 = t.dims.iter().product();
-    if n != 1 {
-        return None;
-    }
-    if let Some(v) = t.float_data.first() {
-        return Some(f64::from(*v));
-    }
-    if let Some(v) = t.double_data.first() {
-        return Some(*v);
-    }
-    if let Some(v) = t.int64_data.first() {
-        return Some(*v as f64);
-    }
-    if let Some(v) = t.int32_data.first() {
-        return Some(f64::from(*v));
-    }
-    let r = &t.raw_data;
-    match (t.data_type, r.len()) {
-        (FLOAT, 4) => Some(f64::from(f32::from_le_bytes([r[0], r[1], r[2], r[3]]))),
-        (DOUBLE, 8) => Some(f64::from_le_bytes(r[..8].try_into().ok()?)),
-        (INT64, 8) => Some(i64::from_le_bytes(r[..8].try_into().ok()?) as f64),
-        (INT32, 4) => Some(f64::from(i32::from_le_bytes([r[0], r[1], r[2], r[3]]))),
-        (FLOAT16, 2) => {
-            let bits = u16::from_le_bytes([r[0], r[1]]);
-            Some(f64::from(half_to_f32(bits)))
-        }
-        _ => None,
-    }
-}
-
-fn half_to_f32(h: u16) -> f32 {
-    let sign = u32::from(h >> 15) << 31;
-    let exp = i32::from((h >> 10) & 0x1f);
-    let frac = u32::from(h & 0x3ff);
-    let bits = match (exp, frac) {
-        (0, 0) => sign,
-        (0, f) => {
-            let v = f as f32 * (1.0 / 16_777_216.0);
-            return if sign != 0 { -v } else { v };
-        }
-        (31, 0) => sign | 0x7f80_0000,
-        (31, f) => sign | 0x7f80_0000 | (f << 13),
-        (e, f) => sign | (((e - 15 + 127) as u32) << 23) | (f << 13),
-    };
-    f32::from_bits(bits)
-}
-
 fn classes_from_graph(graph: &pb::GraphProto, label: &str) -> Option<usize> {
-    let consts = constants(graph);
+    let consts = crate::graph::constants(graph);
     for n in &graph.node {
         match n.op_type.as_str() {
             "Gather" if n.input.get(1).map(String::as_str) == Some(label) => {
@@ -619,7 +553,10 @@ fn classes_from_graph(graph: &pb::GraphProto, label: &str) -> Option<usize> {
                 return data.dims.get(ax as usize).map(|&d| d as usize);
             }
             "OneHot" if n.input.first().map(String::as_str) == Some(label) => {
-                return consts.get(n.input.get(1)?.as_str()).and_then(|t| scalar(t)).map(|v| v as usize);
+                return consts
+                    .get(n.input.get(1)?.as_str())
+                    .and_then(|t| crate::graph::scalar(t))
+                    .map(|v| v as usize);
             }
             "Cast" | "Identity" if n.input.first().map(String::as_str) == Some(label) => {
                 if let Some(k) = classes_from_graph(graph, n.output.first()?) {
@@ -697,16 +634,6 @@ pub(crate) fn finish(
     })
 }
 
-fn producers(graph: &pb::GraphProto) -> HashMap<&str, &pb::NodeProto> {
-    let mut m = HashMap::new();
-    for n in &graph.node {
-        for o in &n.output {
-            m.insert(o.as_str(), n);
-        }
-    }
-    m
-}
-
 const LAYOUT_OPS: &[&str] = &[
     "Transpose",
     "Reshape",
@@ -720,10 +647,10 @@ const LAYOUT_OPS: &[&str] = &[
 ];
 
 fn producer_chain_has_nhwc_transpose(graph: &pb::GraphProto, output: &str) -> bool {
-    let prod = producers(graph);
+    let prod = crate::graph::producers(graph);
     let mut cur = output;
     for _ in 0..16 {
-        let Some(n) = prod.get(cur) else { return false };
+        let Some(n) = prod.get(cur).map(|&i| &graph.node[i]) else { return false };
         if n.op_type == "Transpose" {
             let perm: Vec<i64> =
                 n.attribute.iter().find(|a| a.name == "perm").map(|a| a.ints.clone()).unwrap_or_default();
@@ -743,15 +670,17 @@ fn producer_chain_has_nhwc_transpose(graph: &pb::GraphProto, output: &str) -> bo
 /// Walks back from the output through layout ops and scalar affine maps to a bounding op.
 /// Returns the range and a description, or the name of the op that stopped the walk.
 fn discover_range(graph: &pb::GraphProto, output: &str) -> std::result::Result<(ValueRange, String), String> {
-    let prod = producers(graph);
-    let consts = constants(graph);
+    let prod = crate::graph::producers(graph);
+    let consts = crate::graph::constants(graph);
     // y = scale * x + offset, accumulated from the output backwards.
     let mut scale = 1.0f64;
     let mut offset = 0.0f64;
     let mut steps: Vec<String> = vec![];
     let mut cur = output.to_string();
     for _ in 0..32 {
-        let Some(n) = prod.get(cur.as_str()) else { return Err("a graph input".into()) };
+        let Some(n) = prod.get(cur.as_str()).map(|&i| &graph.node[i]) else {
+            return Err("a graph input".into());
+        };
         let op = n.op_type.as_str();
         let bound = match op {
             "Tanh" => Some((-1.0, 1.0)),
@@ -762,7 +691,7 @@ fn discover_range(graph: &pb::GraphProto, output: &str) -> std::result::Result<(
                         .get(i)
                         .filter(|s| !s.is_empty())
                         .and_then(|s| consts.get(s.as_str()))
-                        .and_then(|t| scalar(t))
+                        .and_then(|t| crate::graph::scalar(t))
                 };
                 match (get(1), get(2)) {
                     (Some(lo), Some(hi)) if lo < hi => Some((lo, hi)),
@@ -786,8 +715,8 @@ fn discover_range(graph: &pb::GraphProto, output: &str) -> std::result::Result<(
             continue;
         }
         if matches!(op, "Mul" | "Add" | "Sub" | "Div") && n.input.len() == 2 {
-            let c0 = consts.get(n.input[0].as_str()).and_then(|t| scalar(t));
-            let c1 = consts.get(n.input[1].as_str()).and_then(|t| scalar(t));
+            let c0 = consts.get(n.input[0].as_str()).and_then(|t| crate::graph::scalar(t));
+            let c1 = consts.get(n.input[1].as_str()).and_then(|t| crate::graph::scalar(t));
             let (k, var, const_first) = match (c0, c1) {
                 (None, Some(k)) => (k, &n.input[0], false),
                 (Some(k), None) => (k, &n.input[1], true),
@@ -831,9 +760,9 @@ mod tests {
     #[test]
     fn half_decoding() {
         // IEEE 754 binary16: 0x3c00 = 1.0, 0xc000 = -2.0, 0x7bff = 65504 (largest finite).
-        assert_eq!(half_to_f32(0x3c00), 1.0);
-        assert_eq!(half_to_f32(0xc000), -2.0);
-        assert_eq!(half_to_f32(0x7bff), 65504.0);
-        assert_eq!(half_to_f32(0x0001), 2f32.powi(-24));
+        assert_eq!(crate::graph::f16_to_f32(0x3c00), 1.0);
+        assert_eq!(crate::graph::f16_to_f32(0xc000), -2.0);
+        assert_eq!(crate::graph::f16_to_f32(0x7bff), 65504.0);
+        assert_eq!(crate::graph::f16_to_f32(0x0001), 2f32.powi(-24));
     }
 }

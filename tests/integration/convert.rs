@@ -4,7 +4,7 @@
 use genloom::convert::{self, ConvertOptions, KeepFloat, Precision};
 use genloom::pixels::{PixelFormat, Pixels};
 use genloom::{Generator, GeneratorOptions, LoadOptions, Model};
-use genloom_tests::{demo, judge, npy_u8};
+use genloom_tests::{demo, judge};
 use std::ffi::OsStr;
 
 fn source(name: &str) -> Model {
@@ -187,8 +187,8 @@ fn psnr_and_ssim_match_scikit_image() {
     }
     let ap = dir.path().join("a.npy");
     let bp = dir.path().join("b.npy");
-    std::fs::write(&ap, npy_u8(&[5, h, w, 3], &a_all)).unwrap();
-    std::fs::write(&bp, npy_u8(&[5, h, w, 3], &b_all)).unwrap();
+    std::fs::write(&ap, genloom::npy::to_bytes_u8(&[5, h, w, 3], &a_all)).unwrap();
+    std::fs::write(&bp, genloom::npy::to_bytes_u8(&[5, h, w, 3], &b_all)).unwrap();
     let op = dir.path().join("ours.json");
     std::fs::write(&op, serde_json::to_vec(&serde_json::json!({"psnr": psnrs, "ssim": ssims})).unwrap())
         .unwrap();

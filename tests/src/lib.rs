@@ -100,20 +100,3 @@ pub fn judge(args: &[&std::ffi::OsStr]) {
         String::from_utf8_lossy(&out.stderr)
     );
 }
-
-/// NPY v1.0 bytes of a uint8 array (for image stacks handed to Python judges).
-pub fn npy_u8(shape: &[usize], values: &[u8]) -> Vec<u8> {
-    let dims: Vec<String> = shape.iter().map(|d| d.to_string()).collect();
-    let shape_text =
-        if shape.len() == 1 { format!("({},)", dims[0]) } else { format!("({})", dims.join(", ")) };
-    let mut dict = format!("{{'descr': '|u1', 'fortran_order': False, 'shape': {shape_text}, }}");
-    while (10 + dict.len() + 1) % 64 != 0 {
-        dict.push(' ');
-    }
-    dict.push('\n');
-    let mut out = b"\x93NUMPY\x01\x00".to_vec();
-    out.extend_from_slice(&(dict.len() as u16).to_le_bytes());
-    out.extend_from_slice(dict.as_bytes());
-    out.extend_from_slice(values);
-    out
-}
