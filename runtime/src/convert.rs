@@ -542,11 +542,36 @@ pub fn compare(reference: &Model, other: &Model, seed: u64, count: usize) -> Res
     let o = GeneratorOptions { warm_up: false, ..Default::default() };
     let ga = Generator::new(reference.clone(), o.clone())?;
     let gb = Generator::new(other.clone(), o)?;
-    let latents = ga.sample_latents(&SampleOptions::new(seed, count))?;
+    compare_generators(&ga, &gb, seed, count)
+}
+
+/// As [`compare`], for two generators already built: the way to measure a run setting such as
+/// [`GeneratorOptions::f16_compute`] against f32 compute of the same model.
+///
+/// # Errors
+/// As [`compare`].
+pub fn compare_generators(
+    reference: &Generator,
+    other: &Generator,
+    seed: u64,
+    count: usize,
+) -> Result<Fidelity> {
+    let (a, b) = (reference.signature(), other.signature());
+    if a.latent.dim != b.latent.dim
+        || a.image.values_per_image() != b.image.values_per_image()
+        || a.label.as_ref().map(|l| l.classes) != b.label.as_ref().map(|l| l.classes)
+    {
+        return Err(Error::invalid(
+            "generators to compare",
+            "generators with different signatures",
+            "two exports of the same generator (same latent size, label classes and image size)",
+        ));
+    }
+    let latents = reference.sample_latents(&SampleOptions::new(seed, count))?;
     let labels: Option<Vec<i64>> =
         a.label.as_ref().map(|l| (0..count).map(|i| (i % l.classes) as i64).collect());
-    let ia = ga.generate(&latents, labels.as_deref())?;
-    let ib = gb.generate(&latents, labels.as_deref())?;
+    let ia = reference.generate(&latents, labels.as_deref())?;
+    let ib = other.generate(&latents, labels.as_deref())?;
     crate::metrics::fidelity(&ia, &ib)
 }
 

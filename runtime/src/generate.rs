@@ -32,11 +32,24 @@ pub struct GeneratorOptions {
     /// Default false, so that building a generator stays cheap and predictable; the `genloom`
     /// command turns it on unless `--micro-batch N` is given. Ignored on wasm32 (no clock).
     pub tune: bool,
+    /// Compute in IEEE 754 binary16 instead of f32 (opt-in). Convolutions stay in f32, because
+    /// tract's f16 Conv kernel is about 200x slower on x86-64; everything else (ConvTranspose,
+    /// matrix products, activations, normalisation) runs in f16. Saves resident memory, costs
+    /// speed on CPUs without native f16 arithmetic, and changes the pictures slightly (measure
+    /// with `genloom check --against`). Default false.
+    pub f16_compute: bool,
 }
 
 impl Default for GeneratorOptions {
     fn default() -> Self {
-        GeneratorOptions { micro_batch: 8, threads: 1, max_cached_plans: 4, warm_up: true, tune: false }
+        GeneratorOptions {
+            micro_batch: 8,
+            threads: 1,
+            max_cached_plans: 4,
+            warm_up: true,
+            tune: false,
+            f16_compute: false,
+        }
     }
 }
 
@@ -146,8 +159,10 @@ impl Generator {
             model.limits().max_micro_batch_bytes,
             "Limits::max_micro_batch_bytes (or use a smaller micro-batch)",
         )?;
+        let typed =
+            if options.f16_compute { crate::plan::f16_compute(&model.typed)? } else { model.typed.clone() };
         let plans = Plans::new(
-            model.typed.clone(),
+            typed,
             model.batch_symbol.clone(),
             fixed,
             if options.tune { options.max_cached_plans.max(6) } else { options.max_cached_plans.max(1) },
@@ -407,6 +422,7 @@ impl Generator {
             req.labels.map(|ls| (0..batch).map(|i| ls[s + i.min(n - 1)]).collect());
         let inputs = input_values(&self.model, &z, labels.as_deref(), batch)?;
         let plan = self.plans.plan_for(batch)?;
+        let inputs = crate::plan::cast_inputs(&plan, inputs)?;
         let outputs = crate::model::guard(format!("run a batch of {batch}"), || plan.run(inputs))?;
         let out = outputs.get(self.model.output_index).ok_or_else(|| Error::Output {
             reason: format!("the model returned {} outputs", outputs.len()),

@@ -14,6 +14,44 @@ use tract_onnx::prelude::*;
 /// A runnable tract plan.
 pub(crate) type Runnable = Arc<TypedRunnableModel>;
 
+/// Rewrites `typed` to compute in IEEE 754 binary16: every f32 constant, input and operator
+/// becomes f16, except Conv, which gets Casts around it and runs in f32 (tract's f16 Conv falls
+/// to a generic kernel, about 200x slower here). ConvTranspose runs in f16: keeping it in f32
+/// too was 1.7x faster on the demo model but kept all its weights in f32, which is the memory
+/// this mode exists to save.
+/// The model's inputs and outputs become f16 too; [`cast_inputs`] and the output read
+/// (`cast_to::<f32>`) bridge that. Constants cast here are folded by tract's optimiser.
+pub(crate) fn f16_compute(typed: &TypedModel) -> Result<TypedModel> {
+    use tract_onnx::tract_core::floats::FloatPrecisionTranslator;
+    use tract_onnx::tract_core::ops::cnn::Conv;
+    use tract_onnx::tract_core::transform::ModelTransform;
+    let translator = FloatPrecisionTranslator::with_filter(DatumType::F32, DatumType::F16, |node| {
+        node.op_as::<Conv>().is_none()
+    });
+    let model = typed.clone();
+    guard("rewrite the graph for f16 compute", move || translator.transform_into(model))
+}
+
+/// Casts each input to the datum type the plan declares for it (f16 for an f16-compute plan);
+/// inputs that already match, and non-float inputs, pass through.
+pub(crate) fn cast_inputs(plan: &Runnable, inputs: TVec<TValue>) -> Result<TVec<TValue>> {
+    let model = plan.model();
+    let mut out: TVec<TValue> = tvec![];
+    for (i, v) in inputs.into_iter().enumerate() {
+        let want = model
+            .input_fact(i)
+            .map_err(|e| Error::tract(format!("read the type of input {i}"), e))?
+            .datum_type;
+        if v.datum_type() == want || !want.is_float() || !v.datum_type().is_float() {
+            out.push(v);
+        } else {
+            let t = v.cast_to_dt(want).map_err(|e| Error::tract(format!("cast input {i} to {want:?}"), e))?;
+            out.push(t.into_owned().into_tvalue());
+        }
+    }
+    Ok(out)
+}
+
 /// The plans of one model.
 #[derive(Debug)]
 pub(crate) struct Plans {

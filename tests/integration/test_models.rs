@@ -228,3 +228,43 @@ fn one_generator_serves_many_threads() {
         }
     }
 }
+
+#[test]
+fn f16_compute_stays_near_the_onnx_reference_evaluator() {
+    // Source: `onnx.reference.ReferenceEvaluator` outputs in f32 (models/*.onnxref.npy). IEEE 754
+    // binary16 keeps 11 significant bits (unit roundoff 2^-11, about 4.9e-4), so a few layers of
+    // rounded products and sums land a few roundoffs off: measured 0.7e-3 to 1.3e-3 of the range
+    // width here. The bound, 4e-3, is about one 8-bit level (1/255 = 3.9e-3). Every model must
+    // also differ from its f32 output somewhere, which shows the f16 path really ran.
+    let mut checked = 0;
+    for m in ok_models() {
+        let Some(refname) = m["onnxref"].as_str() else { continue };
+        let name = m["name"].as_str().unwrap();
+        let model = Model::from_path(
+            golden(&format!("models/{}", m["file"].as_str().unwrap())),
+            &LoadOptions::default(),
+        )
+        .unwrap();
+        let dim = model.signature().latent.dim;
+        let range = model.signature().image.range;
+        let width = range.hi - range.lo;
+        let latents =
+            npy::read_latents(&golden(&format!("models/{}", m["latents"].as_str().unwrap())), dim).unwrap();
+        let labels = labels_of(&m);
+        let want = NpyArray::read(&golden(&format!("models/{refname}"))).unwrap();
+        let NpyData::F32(want) = want.data else { panic!("{name}: reference is not f32") };
+        let mut o = GeneratorOptions::default();
+        o.f16_compute = true;
+        o.micro_batch = 2;
+        let g = Generator::new(model.clone(), o).unwrap();
+        let images = g.generate(&latents, labels.as_deref()).unwrap();
+        assert_eq!(images.data.len(), want.len(), "{name}");
+        let worst = max_abs_diff(&images.data, &want) / width;
+        eprintln!("{name}: f16 compute max abs error {worst:.2e} of the range width");
+        assert!(worst <= 4e-3, "{name}: f16 compute is {worst} of the range width off the reference");
+        let f32_images = generator(&model, 2, 1).generate(&latents, labels.as_deref()).unwrap();
+        assert_ne!(images.data, f32_images.data, "{name}: f16 compute gave the f32 result bit for bit");
+        checked += 1;
+    }
+    assert!(checked >= 7, "only {checked} models checked");
+}

@@ -15,7 +15,8 @@ fn miri_options_lifecycle_and_nulls() {
         assert_eq!(genloom_options_set_threads(o, 2), genloom_status::Ok);
         assert_eq!(genloom_options_set_threads(o, 0), genloom_status::InvalidArgument);
         assert_eq!(genloom_options_set_micro_batch(ptr::null_mut(), 4), genloom_status::NullArgument);
-        assert_eq!(genloom_options_set_f16_compute(o, true), genloom_status::Unsupported);
+        assert_eq!(genloom_options_set_f16_compute(o, true), genloom_status::Ok);
+        assert_eq!(genloom_options_set_f16_compute(ptr::null_mut(), true), genloom_status::NullArgument);
         genloom_options_free(o);
         genloom_options_free(ptr::null_mut());
         assert_eq!(genloom_options_new(ptr::null_mut()), genloom_status::NullArgument);

@@ -34,7 +34,8 @@ pub enum genloom_status {
     Limit = 8,
     /// A file could not be read, or an image could not be encoded.
     Io = 9,
-    /// The option or feature is not available in this build (e.g. f16 compute).
+    /// The option or feature is not available in this build (reserved: no call of this version
+    /// returns it).
     Unsupported = 10,
     /// A panic inside genloom was caught at the boundary. This is a bug in genloom: please report
     /// it with the message. Free the handles the call used; do not keep using them.

@@ -123,12 +123,17 @@ pub struct RunArgs {
     /// Images per inference call, or `auto` to measure 1, 2, 4, 8 and 16 and keep the fastest.
     #[arg(long, default_value = "auto", value_name = "N")]
     pub micro_batch: String,
+    /// Compute in f16 (convolutions stay f32): less memory, slower on most x86-64 CPUs, and
+    /// slightly different pictures.
+    #[arg(long)]
+    pub f16_compute: bool,
 }
 
 impl RunArgs {
     pub fn generator(&self, model: Model) -> CliResult<(Generator, f64)> {
         let mut o = GeneratorOptions::default();
         o.threads = self.threads;
+        o.f16_compute = self.f16_compute;
         if self.micro_batch == "auto" {
             o.tune = true;
         } else {

@@ -312,3 +312,40 @@ fn bench_reports_every_column() {
         "the model's weights pass through the heap"
     );
 }
+
+#[test]
+fn f16_compute_draws_nearly_the_same_tiles() {
+    let d = tempfile::tempdir().unwrap();
+    let o = genloom(&["sample", "-n", "4", "--seed", "3", "--out", "f32.png"], d.path());
+    assert!(o.status.success(), "{}", text(&o.stderr));
+    let o = genloom(&["sample", "-n", "4", "--seed", "3", "--f16-compute", "--out", "f16.png"], d.path());
+    assert!(o.status.success(), "{}", text(&o.stderr));
+    let a = image::open(d.path().join("f32.png")).unwrap().to_rgb8();
+    let b = image::open(d.path().join("f16.png")).unwrap().to_rgb8();
+    assert_eq!(a.dimensions(), b.dimensions());
+    // IEEE 754 binary16 compute: each pixel within a few 8-bit levels, and not all identical.
+    let worst = a.as_raw().iter().zip(b.as_raw()).map(|(x, y)| x.abs_diff(*y)).max().unwrap();
+    assert!(worst <= 2, "a pixel moved by {worst} levels");
+    assert_ne!(a.as_raw(), b.as_raw(), "--f16-compute changed nothing");
+    // bench --f16-compute reports the PSNR of f16 against f32 compute in its first row.
+    let o = genloom(
+        &[
+            "bench",
+            "--batch",
+            "1",
+            "--iters",
+            "3",
+            "--images",
+            "8",
+            "--threads",
+            "1",
+            "--f16-compute",
+            "--json",
+        ],
+        d.path(),
+    );
+    assert!(o.status.success(), "{}", text(&o.stderr));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let psnr = v["rows"][0]["psnr_vs_first_db"].as_f64().expect("a PSNR for f16 compute");
+    assert!(psnr > 45.0 && psnr.is_finite(), "f16 compute PSNR {psnr}");
+}

@@ -64,7 +64,9 @@ pub struct Generator {
 impl Generator {
     /// Loads a single-file ONNX model from a `Uint8Array` (or `ArrayBuffer`) and builds its
     /// plans. `options` may hold `microBatch` (images per inference call, default 8),
-    /// `maxCachedPlans` (default 4) and `warmUp` (build the plans now, default true).
+    /// `maxCachedPlans` (default 4), `warmUp` (build the plans now, default true) and
+    /// `f16Compute` (compute in f16 except Conv: less memory, slower, pixels within about one
+    /// level; default false).
     ///
     /// # Errors
     /// Throws for bytes that are not a usable generator (empty, an HTML page, not ONNX, external
@@ -72,7 +74,7 @@ impl Generator {
     #[wasm_bindgen(constructor)]
     pub fn new(bytes: &JsValue, options: &JsValue) -> Result<Generator, JsError> {
         let fields =
-            js::Fields::new("generator options", options, &["microBatch", "maxCachedPlans", "warmUp"])
+            js::Fields::new("generator options", options, &["microBatch", "maxCachedPlans", "warmUp", "f16Compute"])
                 .map_err(err)?;
         let mut opts = GeneratorOptions::default();
         if let Some(v) = fields.get("microBatch").map_err(err)? {
@@ -86,6 +88,9 @@ impl Generator {
         }
         if let Some(v) = fields.get("warmUp").map_err(err)? {
             opts.warm_up = js::boolean("warmUp", &v).map_err(err)?;
+        }
+        if let Some(v) = fields.get("f16Compute").map_err(err)? {
+            opts.f16_compute = js::boolean("f16Compute", &v).map_err(err)?;
         }
         // WebAssembly here has one thread: generation always runs on the calling thread.
         opts.threads = 1;

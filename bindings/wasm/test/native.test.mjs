@@ -3,7 +3,7 @@
 import { test } from "node:test";
 import assert from "node:assert/strict";
 import {
-  wasm, golden, generator, fromBits, fromBase64, floatsFromBase64, caseOptions, caseLabels, compare, pngSize,
+  wasm, golden, generator, fromBits, fromBase64, floatsFromBase64, caseOptions, caseLabels, compare, pngSize, modelBytes,
 } from "./helpers.mjs";
 
 for (const [name, model] of Object.entries(golden.models)) {
@@ -113,4 +113,29 @@ test("a Number seed means the same as the BigInt seed; latents also take plain a
   assert.deepEqual(wasm.lerp(z, z, 0.5), z);
   assert.equal(wasm.slerp(z, g.sampleLatents(8n, 1), 0.25).length, z.length);
   assert.match(wasm.version(), /^\d+\.\d+\.\d+/);
+});
+
+test("f16Compute: the same tiles within one level, computed another way", (t) => {
+  // IEEE 754 binary16 keeps 11 significant bits; the native runtime's own test bounds f16
+  // compute at 4e-3 of the range width (about one 8-bit level) against the ONNX reference.
+  const model = golden.models.tiles;
+  const g32 = new wasm.Generator(modelBytes("tiles"), {});
+  const g16 = new wasm.Generator(modelBytes("tiles"), { f16Compute: true });
+  const [lo, hi] = model.range;
+  let worst = 0;
+  let identical = true;
+  for (const c of model.cases) {
+    const z = fromBits(c.latentBits);
+    const a = g32.generateFloat(z, caseLabels(c));
+    const b = g16.generateFloat(z, caseLabels(c));
+    const r = compare(a, b);
+    worst = Math.max(worst, r.max);
+    identical &&= r.differ === 0;
+  }
+  assert.ok(worst <= 4e-3 * (hi - lo), `f16 compute is ${worst} off f32 compute`);
+  assert.ok(!identical, "f16 compute gave the f32 floats bit for bit");
+  assert.throws(() => new wasm.Generator(modelBytes("tiles"), { f16Compute: "yes" }), /f16Compute/);
+  g32.free();
+  g16.free();
+  t.diagnostic(`max abs difference to f32 compute ${worst.toExponential(3)}`);
 });

@@ -218,6 +218,49 @@ fn generation_matches_the_rust_api_as_floats_and_pixels() {
 }
 
 #[test]
+fn f16_compute_matches_the_rust_api_and_differs_from_f32() {
+    let mut options = ptr::null_mut();
+    // SAFETY: `options` is a valid out-param, then a live handle.
+    unsafe {
+        assert_eq!(genloom_options_new(&mut options), genloom_status::Ok);
+        assert_eq!(genloom_options_set_f16_compute(options, true), genloom_status::Ok);
+    }
+    let g = open_demo(options);
+    // SAFETY: the options were copied by the open call and are freed once.
+    unsafe { genloom_options_free(options) };
+    let model = Model::from_bytes(genloom::demo::TILES_ONNX, &LoadOptions::default()).unwrap();
+    let mut o = GeneratorOptions::default();
+    o.f16_compute = true;
+    let rust = Generator::new(model, o).unwrap();
+    let z = sample(g, 7, 4);
+    let latents = genloom::Latents::new(64, z.clone()).unwrap();
+    let want = rust.generate(&latents, None).unwrap();
+    let f32_result = rust_demo().generate(&latents, None).unwrap();
+    let mut floats = vec![0f32; want.data.len()];
+    let mut needed = 0;
+    // SAFETY: `g` is live; the buffers hold their lengths; no labels (length 0, NULL).
+    let s = unsafe {
+        genloom_generator_generate(
+            g,
+            z.as_ptr(),
+            z.len(),
+            ptr::null(),
+            0,
+            None,
+            ptr::null_mut(),
+            floats.as_mut_ptr(),
+            floats.len(),
+            &mut needed,
+        )
+    };
+    assert_eq!(s, genloom_status::Ok, "{}", last_error());
+    assert_eq!(bits(&floats), bits(&want.data), "the C handle's f16 compute differs from the Rust API's");
+    assert_ne!(bits(&floats), bits(&f32_result.data), "f16 compute gave the f32 result bit for bit");
+    // SAFETY: `g` is live and freed once.
+    unsafe { genloom_generator_free(g) };
+}
+
+#[test]
 fn interpolation_matches_the_rust_api() {
     let rust = rust_demo();
     let keys = rust.sample_latents(&SampleOptions::new(7, 3)).unwrap();

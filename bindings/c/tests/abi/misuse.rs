@@ -578,11 +578,6 @@ fn options_are_checked_and_f16_is_unsupported() {
         );
         expect(genloom_options_set_threads(o, 257), genloom_status::InvalidArgument, "threads is 257");
         expect(genloom_options_set_micro_batch(o, 0), genloom_status::InvalidArgument, "micro-batch is 0");
-        expect(
-            genloom_options_set_f16_compute(o, true),
-            genloom_status::Unsupported,
-            "f16 compute is not available",
-        );
         assert_eq!(genloom_options_set_threads(o, 2), genloom_status::Ok);
         assert_eq!(last_error(), "", "a success clears the message");
         assert_eq!(genloom_options_set_warm_up(o, false), genloom_status::Ok);

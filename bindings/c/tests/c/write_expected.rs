@@ -112,6 +112,12 @@ fn main() -> Result<()> {
     // The same with 2 worker threads and micro-batches of 3.
     let threaded = open(&models.join("tiles.onnx"), 3, 2)?;
     floats(out, "images-mb3-t2.f32", &threaded.generate(&latents, None)?.data)?;
+    // And with f16 compute (micro-batch 8, 1 thread).
+    let mut options = GeneratorOptions::default();
+    options.f16_compute = true;
+    let half =
+        Generator::new(Model::from_path(models.join("tiles.onnx"), &LoadOptions::default())?, options)?;
+    floats(out, "images-f16-compute.f32", &half.generate(&latents, None)?.data)?;
 
     // The conditional model: 8 latents of seed 7, labels 0, 1, 2, ... modulo the classes.
     let kind = open(&models.join("tiles-kind.onnx"), 8, 1)?;
