@@ -59,7 +59,20 @@ cargo test --workspace --doc
 step "C ABI: C programs against the library, under valgrind and AddressSanitizer"
 bash scripts/test-c.sh
 
-# Not yet part of this command: scripts/test-wasm.sh (the wasm package) and
-# scripts/test-fuzz.sh (cargo-fuzz targets); both run by hand for now.
+step "WebAssembly package: Node tests and the demo page in Chromium (scripts/test-wasm.sh)"
+bash scripts/test-wasm.sh
+
+# Fuzzing, bounded: FUZZ_SECONDS per target (default here 45). Without a sanitizer, which
+# halves the cold build; panics, hangs and memory blow-ups are still caught, and the C ABI's
+# unsafe code is checked under valgrind and AddressSanitizer above (and Miri, by hand). By hand,
+# `bash scripts/test-fuzz.sh` fuzzes with AddressSanitizer. GENLOOM_FUZZ=0 skips this step.
+if [ "${GENLOOM_FUZZ:-1}" != "0" ]; then
+  step "fuzz every target for ${FUZZ_SECONDS:-45} s (scripts/test-fuzz.sh)"
+  if ! rustup toolchain list | grep -q '^nightly'; then
+    rustup toolchain install nightly --profile minimal
+  fi
+  FUZZ_SECONDS=${FUZZ_SECONDS:-45} FUZZ_BUILD_FLAGS="${FUZZ_BUILD_FLAGS:---sanitizer none --debug-assertions}" \
+    bash scripts/test-fuzz.sh
+fi
 
 step "done"
