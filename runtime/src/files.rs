@@ -54,6 +54,51 @@ pub fn write_atomic_with(
     }
 }
 
+/// Writes several files so that a failure leaves none of them changed: every file is first
+/// written and flushed under a temporary name, and only when all of them are on disk are they
+/// renamed into place (an export and its report, for example).
+///
+/// # Errors
+/// [`Error::Io`] naming the file that could not be written; every temporary file is removed
+/// and every target is left as it was.
+pub fn write_all_atomic(files: &[(&Path, &[u8])]) -> Result<()> {
+    let mut staged: Vec<(PathBuf, &Path)> = Vec::with_capacity(files.len());
+    let remove_all = |staged: &[(PathBuf, &Path)]| {
+        for (tmp, _) in staged {
+            let _ = std::fs::remove_file(tmp);
+        }
+    };
+    // A rename cannot replace a folder: refuse before anything is written, so that the renames
+    // below do not stop half-way.
+    if let Some((path, _)) = files.iter().find(|(p, _)| p.is_dir()) {
+        return Err(Error::io(
+            "write",
+            path,
+            std::io::Error::new(std::io::ErrorKind::IsADirectory, "it is a folder, expected a file name"),
+        ));
+    }
+    for (path, bytes) in files {
+        let tmp = temp_name(path);
+        let written =
+            std::fs::File::create(&tmp).map_err(|e| Error::io("create", &tmp, e)).and_then(|mut f| {
+                staged.push((tmp.clone(), path));
+                f.write_all(bytes).map_err(|e| Error::io("write", path, e))?;
+                f.sync_all().map_err(|e| Error::io("flush", path, e))
+            });
+        if let Err(e) = written {
+            remove_all(&staged);
+            return Err(e);
+        }
+    }
+    for (i, (tmp, path)) in staged.iter().enumerate() {
+        if let Err(e) = std::fs::rename(tmp, path) {
+            remove_all(&staged[i..]);
+            return Err(Error::io("rename into", path, e));
+        }
+    }
+    Ok(())
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -77,5 +122,22 @@ mod tests {
     fn missing_folder_is_named() {
         let e = write_atomic(Path::new("no/such/folder/x.png"), b"x").unwrap_err();
         assert!(e.to_string().contains("no/such/folder"), "{e}");
+    }
+
+    #[test]
+    fn a_failed_second_file_leaves_the_first_untouched() {
+        let dir = tempfile::tempdir().unwrap();
+        let first = dir.path().join("export.onnx");
+        std::fs::write(&first, b"old export").unwrap();
+        // The second target's folder does not exist: its write fails after the first is staged.
+        let second = dir.path().join("missing/report.json");
+        let e = write_all_atomic(&[(&first, b"new export"), (&second, b"{}")]).unwrap_err();
+        assert!(e.to_string().contains("missing"), "{e}");
+        assert_eq!(std::fs::read(&first).unwrap(), b"old export");
+        assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 1, "temporary file left behind");
+        let second = dir.path().join("report.json");
+        write_all_atomic(&[(&first, b"new export"), (&second, b"{}")]).unwrap();
+        assert_eq!(std::fs::read(&first).unwrap(), b"new export");
+        assert_eq!(std::fs::read(&second).unwrap(), b"{}");
     }
 }

@@ -4,7 +4,7 @@ use crate::common::{ensure_parent, out, out_json, usage, CliResult, Failure, Mod
 use clap::Args;
 use genloom::convert::{self, ConvertOptions, KeepFloat, Precision};
 use genloom::{Generator, GeneratorOptions, LoadOptions, Model, SampleOptions};
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 use std::time::Instant;
 
 /// Arguments of `convert`.
@@ -113,12 +113,19 @@ pub fn run(a: &ConvertArgs) -> CliResult {
         }
     }
     ensure_parent(&out_path)?;
-    genloom::files::write_atomic(&out_path, &export.bytes)?;
-    if let Some(p) = &a.report {
-        ensure_parent(p)?;
-        let json = serde_json::to_vec_pretty(r).map_err(anyhow::Error::from)?;
-        genloom::files::write_atomic(p, &json)?;
+    // The export and its report land together or not at all.
+    let json = match &a.report {
+        Some(p) => {
+            ensure_parent(p)?;
+            Some(serde_json::to_vec_pretty(r).map_err(anyhow::Error::from)?)
+        }
+        None => None,
+    };
+    let mut files: Vec<(&Path, &[u8])> = vec![(&out_path, &export.bytes)];
+    if let (Some(p), Some(j)) = (&a.report, &json) {
+        files.push((p, j));
     }
+    genloom::files::write_all_atomic(&files)?;
     if a.json {
         return out_json(r);
     }

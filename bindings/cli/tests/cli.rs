@@ -249,6 +249,32 @@ fn convert_writes_exports_and_refuses_short_fidelity() {
     assert_eq!(o.status.code(), Some(1), "{}", text(&o.stderr));
     assert!(text(&o.stderr).contains("below --min-psnr 200"), "{}", text(&o.stderr));
     assert!(!d.path().join("bad.onnx").exists());
+    // A conversion that fails half-way, after the export is made, while writing its report (the
+    // report target is a folder): the earlier file under the export's name is left as it was,
+    // and no temporary file stays behind.
+    std::fs::write(d.path().join("kept.onnx"), "an earlier export").unwrap();
+    std::fs::create_dir(d.path().join("a-folder")).unwrap();
+    let before: Vec<_> = std::fs::read_dir(d.path()).unwrap().map(|e| e.unwrap().file_name()).collect();
+    let o = genloom(
+        &[
+            "convert",
+            &demo("tiles.onnx"),
+            "--to",
+            "f16",
+            "--out",
+            "kept.onnx",
+            "--report",
+            "a-folder",
+            "--eval-count",
+            "2",
+        ],
+        d.path(),
+    );
+    assert_eq!(o.status.code(), Some(1), "{}", text(&o.stderr));
+    assert!(text(&o.stderr).contains("a-folder"), "{}", text(&o.stderr));
+    assert_eq!(std::fs::read_to_string(d.path().join("kept.onnx")).unwrap(), "an earlier export");
+    let after: Vec<_> = std::fs::read_dir(d.path()).unwrap().map(|e| e.unwrap().file_name()).collect();
+    assert_eq!(before.len(), after.len(), "{after:?}");
     // Converting an export again is refused (exit 2).
     let o = genloom(&["convert", "t8.onnx", "--to", "f16", "--out", "again.onnx"], d.path());
     assert_eq!(o.status.code(), Some(2), "{}", text(&o.stderr));

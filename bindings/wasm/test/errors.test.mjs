@@ -111,6 +111,10 @@ test("bad seeds, counts and options are refused", (t) => {
     refuses(() => wasm.lerp(new Float32Array(3), new Float32Array(4), 0.5), /second latent/),
     refuses(() => wasm.slerp(new Float32Array(3), new Float32Array(3), NaN), /t is NaN/),
     refuses(() => g.generatePng(g.sampleLatents(1n, 1), undefined, { scale: 0 }), /scale is 0/),
+    refuses(() => g.generatePng(g.sampleLatents(1n, 1), undefined, { scale: 65 }), /scale is 65/),
+    refuses(() => g.generatePng(g.sampleLatents(1n, 1), undefined, { scale: NaN }), /scale is NaN/),
+    // 600 tiles of 32 pixels in one row at scale 2: wider than the 16384 pixels a PNG sheet may be.
+    refuses(() => g.generatePng(g.sampleLatents(1n, 600), undefined, { columns: 600, scale: 2 }), /at most 16384/),
     refuses(() => wasm.encodePng(new Uint8Array(10), 2, 2), /RGBA data is 10 bytes, expected 16 bytes/),
     refuses(() => wasm.encodePng(new Uint8Array(16), 0, 2), /width is 0/),
   ];

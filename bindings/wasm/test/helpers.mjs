@@ -1,5 +1,5 @@
 // Shared by the Node tests: the nodejs build of the package, the demo models, and the native
-// expectations written by `cargo run --example wasm-golden` in bindings/wasm (see
+// expectations written by `cargo run -p genloom-tests --example wasm-golden` (see
 // scripts/test-wasm.sh), which this file never computes itself.
 
 import { createRequire } from "node:module";
@@ -23,7 +23,7 @@ export const wasmFile = path.join(path.dirname(pkgPath), "genloom_wasm_bg.wasm")
 const goldenPath = process.env.GENLOOM_WASM_GOLDEN ?? path.join(rootDir, "target", "wasm-golden", "golden.json");
 if (!existsSync(goldenPath)) {
   throw new Error(
-    `${goldenPath} is missing: run (in bindings/wasm) cargo run --example wasm-golden -- ${goldenPath}`,
+    `${goldenPath} is missing: run (at the repository root) cargo run -p genloom-tests --example wasm-golden -- ${goldenPath}`,
   );
 }
 /** What native genloom produced, per model. */

@@ -78,6 +78,8 @@ pub struct SampleOptions {
     /// How many latents.
     pub count: usize,
     /// The index of the first latent: rows `first_index .. first_index + count` are drawn.
+    /// In NumPy-compatible mode the rows before it are drawn too, so `first_index * dim` may
+    /// be at most 10^7 (and the skip at most 4 * 10^7 draws when truncation redraws).
     pub first_index: u64,
     /// The prior.
     pub prior: Prior,
@@ -151,7 +153,9 @@ impl SampleOptions {
             check_finite(centre, dim)?;
         }
         // The NumPy stream is sequential: skipping to `first_index` draws every value before it.
-        const MAX_SKIP: u64 = 100_000_000;
+        // 10^7 values take about a quarter of a second natively (and seconds in instrumented
+        // fuzz builds); past that the call would stall its caller.
+        const MAX_SKIP: u64 = 10_000_000;
         if self.mode == RngMode::NumpyCompatible && self.first_index.saturating_mul(dim as u64) > MAX_SKIP {
             return Err(Error::invalid(
                 "first index",
@@ -215,9 +219,7 @@ impl Latents {
             RngMode::NumpyCompatible => {
                 let mut mt = Mt19937::new(options.seed as u32);
                 let skip = options.first_index.saturating_mul(dim as u64);
-                for _ in 0..skip {
-                    numpy_value(&mut mt, options.prior, options.truncation);
-                }
+                numpy_skip(&mut mt, skip, options, MAX_SKIP_DRAWS)?;
                 for v in data.iter_mut() {
                     *v = numpy_value(&mut mt, options.prior, options.truncation) as f32;
                 }
@@ -321,6 +323,44 @@ fn portable_row(seed: u64, index: u64, prior: Prior, truncation: Option<f32>, ro
     }
 }
 
+/// Most Gaussian draws spent skipping to `first_index` in NumPy-compatible mode. Truncation
+/// redraws values past the threshold, so a small threshold multiplies the draws per value (about
+/// 25 at 0.05); the skip stops at this budget instead of stalling.
+const MAX_SKIP_DRAWS: u64 = 40_000_000;
+
+/// Draws and drops `values` values of the NumPy stream, spending at most `budget` underlying
+/// draws.
+fn numpy_skip(mt: &mut Mt19937, values: u64, options: &SampleOptions, budget: u64) -> Result<()> {
+    let mut draws = 0u64;
+    for _ in 0..values {
+        draws += match options.prior {
+            Prior::Uniform => {
+                mt.next_f64();
+                1
+            }
+            Prior::Gaussian => {
+                let c = options.truncation.map_or(f64::INFINITY, f64::from);
+                let mut n = 1;
+                while mt.next_gaussian().abs() > c {
+                    n += 1;
+                }
+                n
+            }
+        };
+        if draws > budget {
+            return Err(Error::invalid(
+                "first index",
+                options.first_index,
+                format!(
+                    "a nearer row in NumPy-compatible mode: skipping to it with truncation {} draws more than {budget} values (the stream is drawn in order)",
+                    options.truncation.unwrap_or(f32::INFINITY)
+                ),
+            ));
+        }
+    }
+    Ok(())
+}
+
 fn numpy_value(mt: &mut Mt19937, prior: Prior, truncation: Option<f32>) -> f64 {
     match prior {
         Prior::Uniform => -1.0 + 2.0 * mt.next_f64(),
@@ -347,6 +387,30 @@ pub(crate) fn noise_row(seed: u64, stream: u64, index: u64, row: &mut [f32]) {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn skipping_with_a_small_truncation_stops_at_its_budget() {
+        // With truncation 0.05 about 1 Gaussian draw in 25 is kept, so 1000 skipped values cost
+        // about 25 000 draws: over a budget of 5000, within one of 10^6.
+        let o = SampleOptions {
+            mode: RngMode::NumpyCompatible,
+            truncation: Some(0.05),
+            first_index: 1000,
+            ..SampleOptions::new(3, 1)
+        };
+        let e = numpy_skip(&mut Mt19937::new(3), 1000, &o, 5000).unwrap_err();
+        assert!(e.to_string().contains("draws more than 5000 values"), "{e}");
+        assert!(numpy_skip(&mut Mt19937::new(3), 1000, &o, 1_000_000).is_ok());
+        // The skip draws exactly what sampling the skipped rows would: row 1000 after a skip
+        // equals the last row of 1001 rows drawn from the start.
+        let all = Latents::sample(
+            1,
+            &SampleOptions { first_index: 0, ..SampleOptions { count: 1001, ..o.clone() } },
+        )
+        .unwrap();
+        let one = Latents::sample(1, &o).unwrap();
+        assert_eq!(one.as_slice()[0].to_bits(), all.as_slice()[1000].to_bits());
+    }
 
     #[test]
     fn row_i_does_not_depend_on_count() {
@@ -395,6 +459,14 @@ mod tests {
         )
         .unwrap_err();
         assert!(e.to_string().contains("first index"), "{e}");
+        // Found by fuzzing: a first index within the old bound (33.5 million values) still took
+        // seconds; the bound is now 10^7 values.
+        let e = Latents::sample(
+            1,
+            &SampleOptions { mode: RngMode::NumpyCompatible, first_index: 33_554_178, ..Default::default() },
+        )
+        .unwrap_err();
+        assert!(e.to_string().contains("at most 10000000"), "{e}");
         let e = Latents::new(4, vec![0.0, 1.0, f32::NAN, 0.0]).unwrap_err();
         assert!(e.to_string().contains("latent 0 has a non-finite value (NaN) at component 2"), "{e}");
     }

@@ -2,7 +2,8 @@
 //! compare the WebAssembly package with native Rust on this machine, with the demo models as
 //! they are now (their weights may be retrained: nothing here is committed).
 //!
-//! `cargo run --example wasm-golden -- OUT.json [--bench]`, from bindings/wasm (its own workspace).
+//! `cargo run -p genloom-tests --example wasm-golden -- OUT.json [--bench]` from the repository
+//! root (it lives in the root workspace so that the test command reuses the root's build).
 //!
 //! OUT.json holds, per case, the sampling options, the latents as f32 bit patterns, the RGBA
 //! pixels (base64) and the float output (f32 bits, base64) of each demo model; plus the path
@@ -229,7 +230,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     let bench = args.any(|a| a == "--bench");
     let root = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../..");
     let doc = json!({
-        "producer": "native genloom (bindings/wasm/examples/wasm_golden.rs)",
+        "producer": "native genloom (tests/examples/wasm_golden.rs)",
         "profile": if cfg!(debug_assertions) { "debug" } else { "release" },
         "models": {
             "tiles": model(&root, "tiles.onnx", bench)?,
