@@ -228,7 +228,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     let mut args = std::env::args().skip(1);
     let out = PathBuf::from(args.next().ok_or("usage: wasm-golden OUT.json [--bench]")?);
     let bench = args.any(|a| a == "--bench");
-    let root = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../..");
+    let root = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("..");
     let doc = json!({
         "producer": "native genloom (tests/examples/wasm_golden.rs)",
         "profile": if cfg!(debug_assertions) { "debug" } else { "release" },

@@ -104,12 +104,36 @@ pub(crate) fn slerp64(a: &[f64], b: &[f64], t: f64) -> Vec<f64> {
         let mut p: Vec<f64> = a.iter().map(|x| -along * x).collect();
         p[k] += 1.0;
         let np = norm(&p);
+        if !(np > 0.0 && np.is_finite()) {
+            // One-value latents have no perpendicular direction: go straight through.
+            return lerp(t);
+        }
         let scale = (na + nb) / 2.0 / np;
         for v in p.iter_mut() {
             *v *= scale;
         }
-        return if t <= 0.5 { slerp64(a, &p, 2.0 * t) } else { slerp64(&p, b, 2.0 * t - 1.0) };
+        // Each half is a quarter turn, so it never meets this case again; for inputs so extreme
+        // that rounding makes a half antiparallel anyway, `slerp_plain` falls back to lerp
+        // (found by fuzzing: the recursion used to be unbounded there).
+        return if t <= 0.5 { slerp_plain(a, &p, 2.0 * t) } else { slerp_plain(&p, b, 2.0 * t - 1.0) };
     }
+    slerp_formula(a, b, omega, t)
+}
+
+/// Slerp without the antiparallel construction: lerp when either end is zero or the ends are
+/// (anti)parallel, Shoemake's formula otherwise.
+fn slerp_plain(a: &[f64], b: &[f64], t: f64) -> Vec<f64> {
+    let (na, nb) = (norm(a), norm(b));
+    let dot: f64 = a.iter().zip(b).map(|(x, y)| x * y).sum();
+    let omega = libm::acos((dot / (na * nb)).clamp(-1.0, 1.0));
+    if na == 0.0 || nb == 0.0 || !(omega >= PARALLEL_EPS && core::f64::consts::PI - omega >= PARALLEL_EPS) {
+        return a.iter().zip(b).map(|(x, y)| (1.0 - t) * x + t * y).collect();
+    }
+    slerp_formula(a, b, omega, t)
+}
+
+/// Shoemake (1985): `sin((1 - t) omega) / sin(omega) * a + sin(t omega) / sin(omega) * b`.
+fn slerp_formula(a: &[f64], b: &[f64], omega: f64, t: f64) -> Vec<f64> {
     let so = libm::sin(omega);
     let wa = libm::sin((1.0 - t) * omega) / so;
     let wb = libm::sin(t * omega) / so;
@@ -220,6 +244,22 @@ mod tests {
 
     fn vec_strategy(n: usize) -> impl Strategy<Value = Vec<f32>> {
         proptest::collection::vec(-3.0f32..3.0, n)
+    }
+
+    #[test]
+    fn antiparallel_one_value_latents_terminate() {
+        // Found by fuzzing: for one-value latents the perpendicular helper is a rounding
+        // residue parallel to the ends, and the antiparallel case recursed until the stack
+        // overflowed (first input: -2.8706055 against its negation at t = 0).
+        for i in 0..2000 {
+            let x = -4.0 + i as f32 * 0.004_01;
+            for t in [0.0, 0.25, 0.5, 0.75, 1.0] {
+                let out = slerp(&[x], &[-x], t).unwrap();
+                assert_eq!(out.len(), 1);
+                assert!(out[0].is_finite(), "{x} at {t}: {out:?}");
+            }
+        }
+        assert_eq!(slerp(&[-2.870_605_5], &[2.870_605_5], 0.0).unwrap().len(), 1);
     }
 
     proptest! {
