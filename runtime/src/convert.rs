@@ -523,22 +523,27 @@ pub fn convert_probe_f16(values: &[f32]) -> std::result::Result<Vec<u16>, f32> {
     to_f16(values)
 }
 
-/// Generates the same seeded latents (and cycling labels) with two models and compares them.
-///
-/// # Errors
-/// [`Error::InvalidOption`] when the two signatures differ; generation errors.
-pub fn compare(reference: &Model, other: &Model, seed: u64, count: usize) -> Result<Fidelity> {
-    let (a, b) = (reference.signature(), other.signature());
+/// Refuses two `what` ("models", "generators") whose outputs cannot be compared pixel for pixel.
+fn same_signature(what: &str, a: &crate::Signature, b: &crate::Signature) -> Result<()> {
     if a.latent.dim != b.latent.dim
         || a.image.values_per_image() != b.image.values_per_image()
         || a.label.as_ref().map(|l| l.classes) != b.label.as_ref().map(|l| l.classes)
     {
         return Err(Error::invalid(
-            "models to compare",
-            "models with different signatures",
+            format!("{what} to compare"),
+            format!("{what} with different signatures"),
             "two exports of the same generator (same latent size, label classes and image size)",
         ));
     }
+    Ok(())
+}
+
+/// Generates the same seeded latents (and cycling labels) with two models and compares them.
+///
+/// # Errors
+/// [`Error::InvalidOption`] when the two signatures differ; generation errors.
+pub fn compare(reference: &Model, other: &Model, seed: u64, count: usize) -> Result<Fidelity> {
+    same_signature("models", reference.signature(), other.signature())?;
     let o = GeneratorOptions { warm_up: false, ..Default::default() };
     let ga = Generator::new(reference.clone(), o.clone())?;
     let gb = Generator::new(other.clone(), o)?;
@@ -556,20 +561,10 @@ pub fn compare_generators(
     seed: u64,
     count: usize,
 ) -> Result<Fidelity> {
-    let (a, b) = (reference.signature(), other.signature());
-    if a.latent.dim != b.latent.dim
-        || a.image.values_per_image() != b.image.values_per_image()
-        || a.label.as_ref().map(|l| l.classes) != b.label.as_ref().map(|l| l.classes)
-    {
-        return Err(Error::invalid(
-            "generators to compare",
-            "generators with different signatures",
-            "two exports of the same generator (same latent size, label classes and image size)",
-        ));
-    }
+    same_signature("generators", reference.signature(), other.signature())?;
     let latents = reference.sample_latents(&SampleOptions::new(seed, count))?;
     let labels: Option<Vec<i64>> =
-        a.label.as_ref().map(|l| (0..count).map(|i| (i % l.classes) as i64).collect());
+        reference.signature().label.as_ref().map(|l| (0..count).map(|i| (i % l.classes) as i64).collect());
     let ia = reference.generate(&latents, labels.as_deref())?;
     let ib = other.generate(&latents, labels.as_deref())?;
     crate::metrics::fidelity(&ia, &ib)

@@ -146,14 +146,10 @@ fn bits(v: &[f32]) -> Vec<u32> {
     v.iter().map(|x| x.to_bits()).collect()
 }
 
-#[test]
-fn generation_matches_the_rust_api_as_floats_and_pixels() {
-    let g = open_demo(ptr::null());
-    let rust = rust_demo();
-    let z = sample(g, 7, 6);
-    let latents = genloom::Latents::new(64, z.clone()).unwrap();
-    let want = rust.generate(&latents, None).unwrap();
-    let mut floats = vec![0f32; want.data.len()];
+/// Generates floats for unconditional latents through the C call, into a buffer of `len`
+/// values; asserts the call succeeded and returns the values and the size it reported.
+fn generate_floats(g: *const genloom_generator, z: &[f32], len: usize) -> (Vec<f32>, usize) {
+    let mut floats = vec![0f32; len];
     let mut needed = 0;
     // SAFETY: `g` is live; the buffers hold their lengths; no labels (length 0, NULL).
     let s = unsafe {
@@ -171,6 +167,17 @@ fn generation_matches_the_rust_api_as_floats_and_pixels() {
         )
     };
     assert_eq!(s, genloom_status::Ok, "{}", last_error());
+    (floats, needed)
+}
+
+#[test]
+fn generation_matches_the_rust_api_as_floats_and_pixels() {
+    let g = open_demo(ptr::null());
+    let rust = rust_demo();
+    let z = sample(g, 7, 6);
+    let latents = genloom::Latents::new(64, z.clone()).unwrap();
+    let want = rust.generate(&latents, None).unwrap();
+    let (floats, mut needed) = generate_floats(g, &z, want.data.len());
     assert_eq!(needed, floats.len());
     assert_eq!(bits(&floats), bits(&want.data));
 
@@ -236,24 +243,7 @@ fn f16_compute_matches_the_rust_api_and_differs_from_f32() {
     let latents = genloom::Latents::new(64, z.clone()).unwrap();
     let want = rust.generate(&latents, None).unwrap();
     let f32_result = rust_demo().generate(&latents, None).unwrap();
-    let mut floats = vec![0f32; want.data.len()];
-    let mut needed = 0;
-    // SAFETY: `g` is live; the buffers hold their lengths; no labels (length 0, NULL).
-    let s = unsafe {
-        genloom_generator_generate(
-            g,
-            z.as_ptr(),
-            z.len(),
-            ptr::null(),
-            0,
-            None,
-            ptr::null_mut(),
-            floats.as_mut_ptr(),
-            floats.len(),
-            &mut needed,
-        )
-    };
-    assert_eq!(s, genloom_status::Ok, "{}", last_error());
+    let (floats, _) = generate_floats(g, &z, want.data.len());
     assert_eq!(bits(&floats), bits(&want.data), "the C handle's f16 compute differs from the Rust API's");
     assert_ne!(bits(&floats), bits(&f32_result.data), "f16 compute gave the f32 result bit for bit");
     // SAFETY: `g` is live and freed once.
