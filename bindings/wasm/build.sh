@@ -31,6 +31,9 @@ if [ "$have" != "$want" ]; then
     || cargo install --version "$want" wasm-bindgen-cli
 fi
 
+echo "== trimmed tract crates (tract-patch/prepare.py)"
+python3 "$here/tract-patch/prepare.py"
+
 # Cargo reads .cargo/config.toml (target dir, simd128) from the folder it runs in.
 cd "$here"
 profile=()

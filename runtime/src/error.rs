@@ -109,6 +109,19 @@ pub enum Error {
         /// What is wrong.
         reason: String,
     },
+    /// The graph uses an ONNX operator this build's tract does not register. Native builds carry
+    /// all of tract's operators; the WebAssembly build carries those image generators use.
+    #[error("node `{node}` is the ONNX operator `{op_type}`, which {build} does not carry{hint}")]
+    UnsupportedOperator {
+        /// The node's name (or its position when it has none).
+        node: String,
+        /// Its operator.
+        op_type: String,
+        /// "this build of genloom" or "genloom's web build".
+        build: &'static str,
+        /// What to do about it, starting with "; " (empty when there is nothing to add).
+        hint: &'static str,
+    },
     /// tract refused or failed at a step.
     #[error("tract could not {action}: {source}")]
     Tract {
@@ -265,7 +278,8 @@ impl Error {
             | Error::ExternalDataMissing { .. }
             | Error::ExternalDataRange { .. }
             | Error::TensorSize { .. }
-            | Error::Graph { .. } => "load",
+            | Error::Graph { .. }
+            | Error::UnsupportedOperator { .. } => "load",
             Error::Tract { .. } => "tract",
             Error::Signature { .. } | Error::RangeUnknown { .. } => "signature",
             Error::LatentDim { .. }

@@ -134,7 +134,8 @@ impl Model {
     /// [`Error::EmptyModel`], [`Error::HtmlPage`], [`Error::LfsPointer`], [`Error::NotOnnx`] for
     /// bytes that are not an ONNX model; [`Error::ExternalDataNeedsPath`] when the model keeps
     /// weights in another file; [`Error::Limit`]; [`Error::TensorSize`] and [`Error::Graph`] for
-    /// malformed models; [`Error::Tract`] when tract cannot parse or type it; [`Error::Signature`]
+    /// malformed models; [`Error::UnsupportedOperator`] for an operator this build does not
+    /// carry; [`Error::Tract`] when tract cannot parse or type it; [`Error::Signature`]
     /// and [`Error::RangeUnknown`] when it does not look like a generator.
     pub fn from_bytes(bytes: &[u8], options: &LoadOptions) -> Result<Model> {
         Model::load(bytes, "the model bytes", None, options)
@@ -663,11 +664,33 @@ fn check_graph(graph: &pb::GraphProto) -> Result<()> {
     Ok(())
 }
 
+/// Refuses a graph with an operator tract has no builder for, naming it, before tract turns it
+/// into a placeholder that fails later with a less useful message.
+fn check_operators(proto: &pb::ModelProto, known: impl Fn(&str) -> bool) -> Result<()> {
+    let Some(graph) = proto.graph.as_ref() else { return Ok(()) };
+    for (ix, n) in graph.node.iter().enumerate() {
+        if !known(&n.op_type) {
+            let node = if n.name.is_empty() { format!("#{ix}") } else { n.name.clone() };
+            #[cfg(target_arch = "wasm32")]
+            let (build, hint) = (
+                "genloom's web build",
+                "; the web build carries the operators image generators are made of (the list is in \
+                 bindings/wasm/README.md); native genloom runs every operator tract knows",
+            );
+            #[cfg(not(target_arch = "wasm32"))]
+            let (build, hint) = ("this build of genloom", "");
+            return Err(Error::UnsupportedOperator { node, op_type: n.op_type.clone(), build, hint });
+        }
+    }
+    Ok(())
+}
+
 type Built = (TypedModel, Option<Symbol>, Vec<InputRole>, usize, Vec<TDim>, Option<u64>);
 
 /// Parses with tract, fixes the input facts from the discovered inputs, and types the model.
 fn build_typed(proto: &pb::ModelProto, found: &signature::FoundInputs) -> Result<Built> {
     let onnx = tract_onnx::onnx().with_ignore_output_shapes(true).with_ignore_value_info(true);
+    check_operators(proto, |op| onnx.op_register.0.contains_key(op))?;
     let parsed = guard("parse the model", || onnx.parse(proto, None))?;
     if !parsed.unresolved_inputs.is_empty() {
         return Err(Error::Graph {

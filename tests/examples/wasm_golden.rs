@@ -9,13 +9,16 @@
 //! pixels (base64) and the float output (f32 bits, base64) of each demo model; plus the path
 //! frames of `latentPath`. With `--bench` it also times generation (per tile, batch 1 and 8,
 //! fixed-batch plans, one thread) for the comparison in bindings/wasm/README.md: build it with
-//! `--release` for that.
+//! `--release` for that. `outsideWebSet` is the tiles model with one Relu turned into
+//! ThresholdedRelu, an operator native genloom runs and the web build leaves out, so that the
+//! JS tests see the web build refuse it by name.
 
 use genloom::pixels::PixelFormat;
 use genloom::{
     Generator, GeneratorOptions, Interpolation, Latents, LoadOptions, Model, PathOptions, Prior, RngMode,
     SampleOptions,
 };
+use prost::Message;
 use serde_json::{json, Value};
 use std::path::PathBuf;
 use std::time::Instant;
@@ -224,6 +227,25 @@ fn model(root: &std::path::Path, file: &str, bench: bool) -> Result<Value, Box<d
     Ok(doc)
 }
 
+/// The tiles model with its first Relu turned into ThresholdedRelu (ONNX: `x if x > alpha else
+/// 0`, alpha 1 by default): still a generator, which native genloom loads.
+fn outside_web_set(root: &std::path::Path) -> Result<Value, Box<dyn std::error::Error>> {
+    let bytes = std::fs::read(root.join("models-demo").join("tiles.onnx"))?;
+    let mut proto = tract_onnx::pb::ModelProto::decode(&bytes[..])?;
+    let graph = proto.graph.as_mut().ok_or("tiles.onnx has no graph")?;
+    let node = graph.node.iter_mut().find(|n| n.op_type == "Relu").ok_or("tiles.onnx has no Relu")?;
+    node.op_type = "ThresholdedRelu".into();
+    let name = node.name.clone();
+    let edited = proto.encode_to_vec();
+    let native = Model::from_bytes(&edited, &LoadOptions::default());
+    Ok(json!({
+        "bytes": b64(&edited),
+        "opType": "ThresholdedRelu",
+        "node": name,
+        "nativeLoads": native.is_ok(),
+    }))
+}
+
 fn main() -> Result<(), Box<dyn std::error::Error>> {
     let mut args = std::env::args().skip(1);
     let out = PathBuf::from(args.next().ok_or("usage: wasm-golden OUT.json [--bench]")?);
@@ -236,6 +258,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             "tiles": model(&root, "tiles.onnx", bench)?,
             "tiles-kind": model(&root, "tiles-kind.onnx", bench)?,
         },
+        "outsideWebSet": outside_web_set(&root)?,
     });
     if let Some(dir) = out.parent() {
         std::fs::create_dir_all(dir)?;

@@ -135,6 +135,32 @@ fn malformed_graphs() {
 }
 
 #[test]
+fn an_operator_tract_does_not_know_is_named() {
+    // "Frobnicate" is in no ONNX operator set (ONNX operator specification, Operators.md), so
+    // tract has no builder for it: the load stops before tract parses, naming node and operator.
+    let b = edit(|p| {
+        let g = p.graph.as_mut().unwrap();
+        let last = g.node.len() - 1;
+        g.node[last].op_type = "Frobnicate".into();
+        g.node[last].name = "finish".into();
+    });
+    let e = load_bytes(&b);
+    assert!(matches!(e, Error::UnsupportedOperator { .. }), "{e:?}");
+    assert_eq!(e.group(), "load");
+    assert_eq!(
+        e.to_string(),
+        "node `finish` is the ONNX operator `Frobnicate`, which this build of genloom does not carry"
+    );
+    // A node without a name is named by its position.
+    let b = edit(|p| {
+        let g = p.graph.as_mut().unwrap();
+        g.node[0].op_type = "Frobnicate".into();
+        g.node[0].name.clear();
+    });
+    assert!(load_bytes(&b).to_string().starts_with("node `#0` is the ONNX operator `Frobnicate`"));
+}
+
+#[test]
 fn wrong_latent_dtype_is_named() {
     let e = Model::from_path(golden("models/z-int.onnx"), &LoadOptions::default()).unwrap_err();
     assert!(matches!(e, Error::Signature { .. }), "{e}");

@@ -57,6 +57,15 @@ test("model bytes that are not a generator are refused with the runtime's messag
   for (const m of messages) t.diagnostic(m);
 });
 
+test("an operator outside the web build's set is refused by name; native runs it", (t) => {
+  const o = golden.outsideWebSet;
+  // native genloom (tests/examples/wasm_golden.rs) loaded this very model
+  assert.equal(o.nativeLoads, true);
+  const m = refuses(() => new wasm.Generator(fromBase64(o.bytes)), new RegExp(`\`${o.opType}\`.*web build`));
+  assert.ok(m.includes(`node \`${o.node}\``), m);
+  t.diagnostic(m);
+});
+
 test("latents of the wrong size, NaN or the wrong type are refused", (t) => {
   const g = generator("tiles");
   const dim = g.latentDim;
