@@ -5,7 +5,7 @@
 # Both are gitignored. Installs what is missing: the wasm32 target, `wasm-bindgen-cli` at the
 # version pinned in Cargo.toml, and (through `npm ci`) binaryen's wasm-opt.
 #
-# The wasm build uses the crate's own `wasm` profile (opt-level "s", fat LTO, one codegen unit,
+# The wasm build uses the crate's own `wasm` profile (opt-level "z", fat LTO, one codegen unit,
 # panic=abort; the crate is its own workspace) and `simd128` (from .cargo/config.toml), without
 # which tract has no wasm kernels.
 # Environment: GENLOOM_WASM_OPT=0 skips wasm-opt; GENLOOM_WASM_OPT_LEVEL (default -Oz) picks

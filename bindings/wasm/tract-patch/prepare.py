@@ -1,6 +1,6 @@
 #!/usr/bin/env python3
-"""Writes the two trimmed tract crates that the WebAssembly build links instead of the
-registry's: target/tract-web/tract-onnx and target/tract-web/tract-nnef.
+"""Writes the three trimmed tract crates that the WebAssembly build links instead of the
+registry's: target/tract-web/tract-onnx, tract-nnef and tract-core.
 
 Why: a .wasm keeps every function that can be reached, and two things in tract reach almost
 all of it. tract-onnx's `onnx()` registers a builder for each of its 183 ONNX operators
@@ -12,8 +12,10 @@ What this script changes, and nothing else:
 - tract-onnx: the operator register keeps only WEB_OPERATORS below, the operators image
   generators are made of. A model with any other operator is refused at load time with a
   message naming it (genloom checks the register before tract parses the model).
-- tract-nnef: the start-up registration of its "patch" transform is compiled out. genloom
-  never looks transforms up by name.
+- tract-nnef: the start-up registration of its "patch" transform is compiled out.
+- tract-core: the start-up registrations of its named model transforms (batchify, block_quant,
+  set_symbols...) and of its config-file runtime are compiled out. genloom never looks
+  transforms or runtimes up by name: it calls the float-precision translator directly.
 - both: lints about code left unused are allowed.
 
 The sources are the registry's, at the version the root Cargo.lock pins (cargo checks their
@@ -65,7 +67,7 @@ WEB_OPERATORS = {
     "HardSwish", "Softplus", "Softsign", "Gelu", "Swish", "Mish",
 }
 
-CRATES = ("tract-onnx", "tract-nnef")
+CRATES = ("tract-onnx", "tract-nnef", "tract-core")
 
 
 def fail(message):
@@ -172,6 +174,34 @@ def trim_nnef(crate):
     f.write_text(text.replace(marker, "#[cfg(any())]\n" + marker))
 
 
+# The start-up registrations tract-core 0.23.9 makes at the top level of its files, by the
+# first words of their line; each must be found exactly this many times.
+CORE_REGISTRATIONS = {
+    "register_simple_model_transform!(": 4,
+    "register_model_transform!(": 5,
+    "inventory::submit! {": 3,
+    "register_runtime!(DeployRuntime": 1,
+}
+
+
+def trim_core(crate):
+    found = dict.fromkeys(CORE_REGISTRATIONS, 0)
+    for f in sorted((crate / "src").rglob("*.rs")):
+        lines = f.read_text().split("\n")
+        out = []
+        for line in lines:
+            for start in CORE_REGISTRATIONS:
+                if line.startswith(start):
+                    found[start] += 1
+                    out.append("#[cfg(any())]")
+            out.append(line)
+        if len(out) != len(lines):
+            f.write_text("\n".join(out))
+    if found != CORE_REGISTRATIONS:
+        fail(f"tract-core's start-up registrations are not what they were ({found}); "
+             "update bindings/wasm/tract-patch/prepare.py for this tract version")
+
+
 def allow_unused(crate):
     lib = crate / "src" / "lib.rs"
     lib.write_text("#![allow(dead_code, unused_imports, unused_variables, unused_mut)]\n" + lib.read_text())
@@ -185,17 +215,22 @@ def main():
     if stamp.is_file() and stamp.read_text() == want and all((OUT / c / "Cargo.toml").is_file() for c in CRATES):
         print(f"  target/tract-web: trimmed tract {version} is up to date")
         return
-    if OUT.exists():
-        shutil.rmtree(OUT)
-    OUT.mkdir(parents=True)
+    # Written beside, then moved into place: a failed run leaves no half-trimmed crate.
+    work = OUT.with_name(OUT.name + ".partial")
+    for d in (work, OUT):
+        if d.exists():
+            shutil.rmtree(d)
+    work.mkdir(parents=True)
     for c in CRATES:
-        shutil.copytree(sources[c], OUT / c)
-        allow_unused(OUT / c)
-    kept, dropped = trim_onnx(OUT / "tract-onnx")
-    trim_nnef(OUT / "tract-nnef")
-    stamp.write_text(want)
+        shutil.copytree(sources[c], work / c)
+        allow_unused(work / c)
+    kept, dropped = trim_onnx(work / "tract-onnx")
+    trim_nnef(work / "tract-nnef")
+    trim_core(work / "tract-core")
+    (work / "stamp").write_text(want)
+    work.rename(OUT)
     print(f"  target/tract-web: tract {version}, {kept} ONNX operators kept, {dropped} left out; "
-          "nnef's start-up transform compiled out")
+          "start-up transforms of nnef and core compiled out")
 
 
 if __name__ == "__main__":
