@@ -112,7 +112,7 @@ def digest(paths):
 
 def statement_end(text, start):
     """Index just past the `;` that ends the call opening at `start` (balanced parentheses,
-    string and char literals skipped)."""
+    string literals skipped; tract's register calls hold no char literal with a parenthesis)."""
     depth = 0
     i = start
     while i < len(text):
