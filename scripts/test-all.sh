@@ -48,6 +48,7 @@ RUSTDOCFLAGS="-D warnings" cargo doc --workspace --no-deps --quiet
 
 step "golden data regenerates byte for byte from the outside references"
 "$PY" tests/golden/make_goldens.py --check
+"$PY" tests/golden/defects/make_defects.py --check
 
 step "verify.py self-test (NumPy and Pillow judges)"
 "$PY" -m unittest discover -s tests/py -q

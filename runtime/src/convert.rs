@@ -149,6 +149,11 @@ pub struct ConvertReport {
     pub eval_count: usize,
     /// Export against source on those latents.
     pub fidelity: Fidelity,
+    /// For an f16 export: the node whose activation comes closest to binary16's largest finite
+    /// value (65504) for ordinary latents, from the activation probe ([`crate::probe`]).
+    pub f16_tightest: Option<crate::probe::NodeActivation>,
+    /// What a user should know before shipping this export (empty when nothing).
+    pub warnings: Vec<String>,
 }
 
 /// An export: the ONNX bytes and the report.
@@ -499,6 +504,10 @@ pub fn convert(source: &Model, options: &ConvertOptions) -> Result<Export> {
     let export = Model::from_bytes(&bytes, &LoadOptions::default())?;
     let fidelity = compare(source, &export, options.eval_seed, options.eval_count)?;
     let source_bytes = source.info().file_bytes;
+    let (f16_tightest, warnings) = match options.precision {
+        Precision::F16 => f16_activation_warnings(source, options.eval_seed)?,
+        _ => (None, vec![]),
+    };
     let report = ConvertReport {
         precision: options.precision,
         source_sha256: source.info().sha256.clone(),
@@ -510,9 +519,44 @@ pub fn convert(source: &Model, options: &ConvertOptions) -> Result<Export> {
         eval_seed: options.eval_seed,
         eval_count: options.eval_count,
         fidelity,
+        f16_tightest,
+        warnings,
     };
     Ok(Export { bytes, report })
 }
+
+/// Activations set against binary16's range. An f16 export stores its weights in binary16 and
+/// genloom computes it in f32, so large activations do not hurt it here; but an engine that
+/// computes in the stored precision, and genloom's own f16 compute setting, would overflow.
+fn f16_activation_warnings(
+    source: &Model,
+    seed: u64,
+) -> Result<(Option<crate::probe::NodeActivation>, Vec<String>)> {
+    let report = crate::probe::activations(source, &crate::probe::ProbeOptions::ordinary(seed, 16))?;
+    let tightest = report.tightest().cloned();
+    let mut warnings = vec![];
+    if let Some(n) = &tightest {
+        if n.max_abs > crate::probe::F16_MAX {
+            warnings.push(format!(
+                "node `{}` ({}) reaches {:.4e} for ordinary latents, past binary16's largest finite value 65504: \
+                 this export stores f16 weights and computes in f32, which is sound, but computing it in f16 \
+                 (genloom's f16 compute setting refuses it; other engines may not) would overflow there",
+                n.node, n.op, n.max_abs
+            ));
+        } else if n.f16_headroom < F16_MARGIN {
+            warnings.push(format!(
+                "node `{}` ({}) reaches {:.4e} for ordinary latents, only {:.1}x under binary16's 65504: \
+                 unusual latents could overflow if the model is computed in f16",
+                n.node, n.op, n.max_abs, n.f16_headroom
+            ));
+        }
+    }
+    Ok((tightest, warnings))
+}
+
+/// Headroom under binary16's largest value below which an f16 export warns: 4x (common
+/// practice, no source: latents at a few times their usual norm stay representable).
+const F16_MARGIN: f64 = 4.0;
 
 /// The binary16 bits genloom stores for `values`, or the first value that would overflow to
 /// infinity (which makes `convert` keep that tensor in f32). Exposed for tests and tools.
@@ -563,8 +607,7 @@ pub fn compare_generators(
 ) -> Result<Fidelity> {
     same_signature("generators", reference.signature(), other.signature())?;
     let latents = reference.sample_latents(&SampleOptions::new(seed, count))?;
-    let labels: Option<Vec<i64>> =
-        reference.signature().label.as_ref().map(|l| (0..count).map(|i| (i % l.classes) as i64).collect());
+    let labels = crate::generate::cycle_labels(reference.signature(), count);
     let ia = reference.generate(&latents, labels.as_deref())?;
     let ib = other.generate(&latents, labels.as_deref())?;
     crate::metrics::fidelity(&ia, &ib)

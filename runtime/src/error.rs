@@ -50,7 +50,7 @@ pub enum Error {
     #[error(
         "the model stores tensor `{tensor}` in the external file `{location}`, which cannot be read from bytes alone; \
          load the model from its path (with the data file beside it), or pack it into one file with \
-         `genloom convert MODEL --precision f32 --out packed.onnx`"
+         `genloom convert MODEL --to f32 --out packed.onnx` (the runtime's `convert` with precision f32 does the same)"
     )]
     ExternalDataNeedsPath {
         /// The tensor that needs external data.
@@ -201,6 +201,21 @@ pub enum Error {
         expected: String,
     },
 
+    /// The model's activations pass binary16's largest finite value (65504) for ordinary latents,
+    /// so computing it in f16 would make infinities.
+    #[error(
+        "node `{node}` ({op}) reaches {max_abs:.4e} for ordinary latents, past binary16's largest finite value \
+         65504: the model cannot compute in f16 (keep f32 compute, or rescale that layer in the source model)"
+    )]
+    F16Overflow {
+        /// The first node that overflows.
+        node: String,
+        /// Its operator.
+        op: String,
+        /// Its largest absolute value in f32.
+        max_abs: f32,
+    },
+
     // ----- NPY -----
     /// An NPY file or buffer could not be read or does not hold what is needed.
     #[error("NPY {what}: {reason}")]
@@ -286,7 +301,8 @@ impl Error {
             | Error::NonFiniteLatent { .. }
             | Error::LabelOutOfRange { .. }
             | Error::Labels { .. }
-            | Error::InvalidOption { .. } => "argument",
+            | Error::InvalidOption { .. }
+            | Error::F16Overflow { .. } => "argument",
             Error::Npy { .. } => "npy",
             Error::Output { .. } | Error::Cancelled { .. } => "inference",
             Error::Limit { .. } => "limits",

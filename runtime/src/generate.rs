@@ -7,12 +7,11 @@
 
 use crate::error::{Error, Result};
 use crate::latent::{Latents, SampleOptions};
-use crate::model::{check_limit, InputRole, Model};
+use crate::model::{check_limit, Model};
 use crate::plan::Plans;
-use crate::signature::{Batch, LabelKind, Layout, Signature, ValueRange};
+use crate::signature::{Batch, Layout, Signature, ValueRange};
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 use std::sync::mpsc;
-use tract_onnx::prelude::*;
 
 /// How a [`Generator`] runs.
 #[derive(Debug, Clone, PartialEq, Eq, serde::Serialize)]
@@ -36,7 +35,10 @@ pub struct GeneratorOptions {
     /// tract's f16 Conv kernel is about 200x slower on x86-64; everything else (ConvTranspose,
     /// matrix products, activations, normalisation) runs in f16. Saves resident memory, costs
     /// speed on CPUs without native f16 arithmetic, and changes the pictures slightly (measure
-    /// with `genloom check --against`). Default false.
+    /// with `genloom check --against`). Building the generator first runs the activation probe
+    /// ([`crate::probe`]) on 8 typical and 8 truncated latents and refuses, with
+    /// [`Error::F16Overflow`] naming the node, a model whose activations pass binary16's largest
+    /// finite value. Default false.
     pub f16_compute: bool,
 }
 
@@ -159,8 +161,15 @@ impl Generator {
             model.limits().max_micro_batch_bytes,
             "Limits::max_micro_batch_bytes (or use a smaller micro-batch)",
         )?;
-        let typed =
-            if options.f16_compute { crate::plan::f16_compute(&model.typed)? } else { model.typed.clone() };
+        let typed = if options.f16_compute {
+            // Refuse before building: a model whose activations pass binary16's range would
+            // give infinities, and tract's Relu and Clip would turn some of them into numbers.
+            crate::probe::activations(&model, &crate::probe::ProbeOptions::ordinary(1, 8))?
+                .require_f16_safe()?;
+            crate::plan::f16_compute(&model.typed)?
+        } else {
+            model.typed.clone()
+        };
         let plans = Plans::new(
             typed,
             model.batch_symbol.clone(),
@@ -420,7 +429,7 @@ impl Generator {
         }
         let labels: Option<Vec<i64>> =
             req.labels.map(|ls| (0..batch).map(|i| ls[s + i.min(n - 1)]).collect());
-        let inputs = input_values(&self.model, &z, labels.as_deref(), batch)?;
+        let inputs = crate::plan::input_values(&self.model, &z, labels.as_deref(), batch)?;
         let plan = self.plans.plan_for(batch)?;
         let inputs = crate::plan::cast_inputs(&plan, inputs)?;
         let outputs = crate::model::guard(format!("run a batch of {batch}"), || plan.run(inputs))?;
@@ -446,53 +455,11 @@ impl Generator {
     }
 }
 
-/// The tract inputs for `batch` latents (row-major `z`) and their labels, in the model's input
-/// order and shapes: `[B, Z]` or `[B, Z, 1, 1]` latents; int64 or int32 `[B]` indices or
-/// float `[B, K]` one-hot rows. Labels must already be checked against the class count.
-pub(crate) fn input_values(
-    model: &Model,
-    z: &[f32],
-    labels: Option<&[i64]>,
-    batch: usize,
-) -> Result<TVec<TValue>> {
-    let sig = model.signature();
-    let dim = sig.latent.dim;
-    let mut inputs: TVec<TValue> = tvec![];
-    for role in &model.input_order {
-        let t = match role {
-            InputRole::Latent => {
-                let shape: Vec<usize> = match sig.latent.layout {
-                    crate::signature::LatentLayout::Flat => vec![batch, dim],
-                    crate::signature::LatentLayout::Spatial => vec![batch, dim, 1, 1],
-                };
-                Tensor::from_shape(&shape, z).map_err(|e| Error::tract("build the latent tensor", e))?
-            }
-            InputRole::Label => {
-                let l = sig
-                    .label
-                    .as_ref()
-                    .ok_or_else(|| Error::Labels { reason: "internal: label role without label".into() })?;
-                let ls = labels.ok_or_else(|| Error::Labels { reason: "internal: labels missing".into() })?;
-                match l.kind {
-                    LabelKind::Index if l.int32 => {
-                        let v: Vec<i32> = ls.iter().map(|&c| c as i32).collect();
-                        Tensor::from_shape(&[batch], &v)
-                    }
-                    LabelKind::Index => Tensor::from_shape(&[batch], ls),
-                    LabelKind::OneHot => {
-                        let mut v = vec![0f32; batch * l.classes];
-                        for (i, &c) in ls.iter().enumerate() {
-                            v[i * l.classes + c as usize] = 1.0;
-                        }
-                        Tensor::from_shape(&[batch, l.classes], &v)
-                    }
-                }
-                .map_err(|e| Error::tract("build the label tensor", e))?
-            }
-        };
-        inputs.push(t.into_tvalue());
-    }
-    Ok(inputs)
+/// Labels `0, 1, ..., classes - 1, 0, 1, ...` for `count` images of a conditional model (`None`
+/// for an unconditional one): how genloom fills the labels of a request that gives none, so
+/// that a batch shows every class.
+pub fn cycle_labels(signature: &Signature, count: usize) -> Option<Vec<i64>> {
+    signature.label.as_ref().map(|l| (0..count).map(|i| (i % l.classes.max(1)) as i64).collect())
 }
 
 #[cfg(test)]

@@ -36,6 +36,7 @@ pub mod npy;
 pub mod passes;
 pub mod pixels;
 mod plan;
+pub mod probe;
 pub mod signature;
 
 pub use convert::{ConvertOptions, ConvertReport, Export, Precision};

@@ -78,3 +78,34 @@ fn eight_threads_share_one_generator() {
         assert!(ok, "thread {t} saw a result that differs from the serial one");
     }
 }
+
+/// A fuzz find (`model_bytes`, about 1.0 million executions): tract's ConvTranspose padding
+/// arithmetic overflowed while the fixed-batch plan was built, outside the panic guard, so the
+/// panic escaped `Generator::generate`. Run as the fuzz target runs it: it must end in an error
+/// or in images, never in a panic.
+#[test]
+fn fuzz_find_convtranspose_padding_overflow_is_an_error() {
+    let bytes = std::fs::read(golden("fuzz/model_bytes-convtranspose-padding-overflow.onnx")).unwrap();
+    let mut options = LoadOptions::default();
+    options.limits.max_model_bytes = 4 << 20;
+    options.limits.max_output_pixels = 256 * 256;
+    options.limits.max_parameters = 4_000_000;
+    options.limits.max_micro_batch_bytes = 16 << 20;
+    let outcome = std::panic::catch_unwind(|| {
+        let model = Model::from_bytes(&bytes, &options)?;
+        let mut o = GeneratorOptions::default();
+        o.warm_up = false;
+        let g = Generator::new(model, o)?;
+        let z = g.sample_latents(&SampleOptions::new(0, 1))?;
+        let labels = g.signature().label.as_ref().map(|_| vec![0i64]);
+        g.generate(&z, labels.as_deref()).map(|_| ())
+    });
+    match outcome {
+        Err(_) => panic!("a tract panic escaped the genloom API"),
+        Ok(Ok(())) => {}
+        Ok(Err(e)) => {
+            let msg = e.to_string();
+            assert!(msg.contains("batch-1 plan") || msg.contains("tract"), "{msg}");
+        }
+    }
+}

@@ -2,11 +2,21 @@
 
 use crate::common::{ensure_parent, out, out_json, usage, CliResult, Failure, ModelArgs, EXIT_FAILED};
 use clap::Args;
-use genloom::check::{self, CheckOptions, FrameworkReference, Status};
+use genloom::check::{self, CheckId, CheckOptions, FrameworkReference, Status, Tolerance};
 use genloom::{LoadOptions, Model};
 use std::path::PathBuf;
 
-/// Arguments of `check`.
+/// The ids `--skip` accepts (every check but `structure` and `batch`), listed by `--help`.
+fn skip_parser() -> impl clap::builder::TypedValueParser<Value = CheckId> {
+    use clap::builder::TypedValueParser;
+    let ids: Vec<&'static str> =
+        CheckId::ALL.into_iter().filter(|c| c.skippable()).map(CheckId::as_str).collect();
+    clap::builder::PossibleValuesParser::new(ids)
+        .map(|s| s.parse::<CheckId>().expect("every listed id parses"))
+}
+
+/// Arguments of `check`. Every threshold's default and where it comes from is listed in the
+/// report (`--json`: `thresholds`).
 #[derive(Debug, Args)]
 pub struct CheckArgs {
     #[command(flatten)]
@@ -15,11 +25,15 @@ pub struct CheckArgs {
     #[arg(long, num_args = 2, value_names = ["LATENTS", "OUTPUTS"])]
     pub reference: Option<Vec<PathBuf>>,
     /// Labels fed with --reference (conditional models).
-    #[arg(long, value_name = "LABELS")]
+    #[arg(long, value_name = "LABELS", requires = "reference")]
     pub labels: Option<PathBuf>,
-    /// Max abs tolerance of --reference.
-    #[arg(long, default_value_t = 1e-4)]
-    pub reference_tolerance: f32,
+    /// --reference tolerance, absolute term as a share of the output range's width
+    /// (|a - b| <= atol x width + rtol x |b|, the rule of numpy.testing.assert_allclose).
+    #[arg(long, default_value_t = 5e-5)]
+    pub parity_atol: f64,
+    /// --reference tolerance, relative term.
+    #[arg(long, default_value_t = 1e-5)]
+    pub parity_rtol: f64,
     /// The source model this export was made from: applies the convert fidelity thresholds.
     #[arg(long, value_name = "SOURCE")]
     pub against: Option<PathBuf>,
@@ -29,21 +43,42 @@ pub struct CheckArgs {
     /// Least SSIM against --against.
     #[arg(long, default_value_t = 0.95)]
     pub min_ssim: f64,
-    /// Largest batch to try.
+    /// Largest batch to try (2 to 1024).
     #[arg(long, default_value_t = 16)]
     pub max_batch: usize,
-    /// Samples for the diversity and finiteness checks.
+    /// Samples for the diversity, range and finiteness checks (8 to 1024).
     #[arg(long, default_value_t = 64)]
-    pub samples: usize,
-    /// Batch-independence tolerance (max abs).
-    #[arg(long, default_value_t = 1e-4)]
-    pub batch_tolerance: f32,
+    pub count: usize,
+    /// Batch-independence tolerance, absolute term as a share of the output range's width.
+    #[arg(long, default_value_t = 5e-5)]
+    pub batch_atol: f64,
+    /// Batch-independence tolerance, relative term.
+    #[arg(long, default_value_t = 1e-5)]
+    pub batch_rtol: f64,
+    /// How far outside the declared range a value may be, as a share of its width.
+    #[arg(long, default_value_t = 1e-3)]
+    pub range_tolerance: f64,
+    /// Share of saturated 8-bit values (0 or 255) above which `range` warns.
+    #[arg(long, default_value_t = 0.25)]
+    pub max_saturated: f64,
     /// Least mean pair RMS difference (share of the range) for diversity.
     #[arg(long, default_value_t = 0.02)]
     pub min_diversity: f64,
+    /// Most share of near-duplicate sample pairs (under one 8-bit level apart).
+    #[arg(long, default_value_t = 0.05)]
+    pub max_duplicates: f64,
+    /// A latent dimension is dead when its effect is below this share of the median effect.
+    #[arg(long, default_value_t = 1e-3)]
+    pub dead_ratio: f64,
     /// Seed of every latent the gate draws.
     #[arg(long, default_value_t = 1)]
     pub seed: u64,
+    /// Warnings fail the gate too (exit 1).
+    #[arg(long)]
+    pub strict: bool,
+    /// Leave a check out (repeatable); it is reported as skipped.
+    #[arg(long, value_name = "CHECK", value_parser = skip_parser())]
+    pub skip: Vec<CheckId>,
     /// Write a contact sheet: samples at several truncation levels and a latent path.
     #[arg(long, value_name = "PATH.png")]
     pub sheet: Option<PathBuf>,
@@ -53,18 +88,22 @@ pub struct CheckArgs {
 }
 
 pub fn run(a: &CheckArgs) -> CliResult {
-    if a.samples < 8 || a.samples > 1024 {
-        return Err(usage(format!("--samples is {}, expected 8 to 1024", a.samples)));
-    }
     let mut o = CheckOptions::default();
     o.seed = a.seed;
-    o.max_batch = a.max_batch.clamp(1, 256);
-    o.samples = a.samples;
-    o.batch_tolerance = a.batch_tolerance;
+    o.max_batch = a.max_batch;
+    o.samples = a.count;
+    o.batch_tolerance = Tolerance { atol: a.batch_atol, rtol: a.batch_rtol };
+    o.reference_tolerance = Tolerance { atol: a.parity_atol, rtol: a.parity_rtol };
+    o.range_tolerance = a.range_tolerance;
+    o.max_saturated = a.max_saturated;
     o.min_diversity = a.min_diversity;
-    o.reference_tolerance = a.reference_tolerance;
+    o.max_duplicates = a.max_duplicates;
+    o.dead_ratio = a.dead_ratio;
     o.min_psnr = a.min_psnr;
     o.min_ssim = a.min_ssim;
+    o.strict = a.strict;
+    o.skip = a.skip.clone();
+    o.validate()?;
     let load = LoadOptions::with_overrides(a.model.overrides()?);
     if let Some(src) = &a.against {
         o.against = Some(Model::from_path(src, &load)?);
@@ -105,53 +144,17 @@ pub fn run(a: &CheckArgs) -> CliResult {
             None => Model::from_bytes(genloom::demo::TILES_ONNX, &load),
         };
         match m {
-            Ok(m)
-                if report.checks.iter().any(|c| {
-                    c.id == "finiteness" && c.status != Status::Fail && c.status != Status::Skip
-                }) =>
-            {
+            Ok(m) if report.get(CheckId::Finiteness).is_some_and(|c| c.status == Status::Pass) => {
                 ensure_parent(p)?;
                 check::sheet(&m, a.seed)?.write_png(p)?;
             }
-            _ => eprintln!("note: no contact sheet written (the model does not generate finite images)"),
+            _ => eprintln!("note: no contact sheet written (the finiteness check did not pass)"),
         }
     }
     if a.json {
         out_json(&report)?;
     } else {
-        let mut s = format!("{}\n", report.model);
-        for c in &report.checks {
-            let mark = match c.status {
-                Status::Pass => "pass",
-                Status::Warn => "WARN",
-                Status::Fail => "FAIL",
-                Status::Skip => "skip",
-            };
-            s.push_str(&format!("  {mark}  {:<19}", c.id));
-            if !c.measured.is_empty() {
-                s.push_str(&format!(" {}", c.measured));
-            }
-            if !c.threshold.is_empty() && c.status != Status::Pass {
-                s.push_str(&format!(" [threshold: {}]", c.threshold));
-            }
-            if !c.detail.is_empty() {
-                if c.measured.is_empty() {
-                    s.push_str(&format!(" {}", c.detail));
-                } else {
-                    s.push_str(&format!("\n        {}", c.detail));
-                }
-            }
-            s.push('\n');
-        }
-        let verdict = if report.ok() { "ship" } else { "do not ship" };
-        s.push_str(&format!(
-            "{verdict}: {} passed, {} warned, {} failed, {} skipped ({:.0} ms)\n",
-            report.passed,
-            report.warned,
-            report.failed,
-            report.checks.len() - report.passed - report.warned - report.failed,
-            report.elapsed_ms
-        ));
+        let mut s = format!("{report}\n");
         if let Some(p) = &a.sheet {
             if p.exists() {
                 s.push_str(&format!("contact sheet: {}\n", p.display()));
@@ -162,6 +165,13 @@ pub fn run(a: &CheckArgs) -> CliResult {
     if report.ok() {
         Ok(())
     } else {
-        Err(Failure { code: EXIT_FAILED, error: anyhow::anyhow!("{} check(s) failed", report.failed) })
+        Err(Failure {
+            code: EXIT_FAILED,
+            error: if report.failed > 0 {
+                anyhow::anyhow!("{} check(s) failed", report.failed)
+            } else {
+                anyhow::anyhow!("{} check(s) warned, and --strict makes warnings fail", report.warned)
+            },
+        })
     }
 }

@@ -126,6 +126,9 @@ pub fn run(a: &ConvertArgs) -> CliResult {
         files.push((p, j));
     }
     genloom::files::write_all_atomic(&files)?;
+    for w in &r.warnings {
+        eprintln!("warning: {w}");
+    }
     if a.json {
         return out_json(r);
     }
@@ -162,6 +165,15 @@ pub fn run(a: &ConvertArgs) -> CliResult {
         ));
     }
     s.push('\n');
+    if let Some(n) = &r.f16_tightest {
+        s.push_str(&format!(
+            "  largest activation: {:.3e} at `{}` ({}), {}\n",
+            n.max_abs,
+            n.node,
+            n.op,
+            n.headroom_words()
+        ));
+    }
     if let Some(p) = &a.report {
         s.push_str(&format!("  report written to {}\n", p.display()));
     }

@@ -311,6 +311,45 @@ fn check_exit_codes_and_json_schema() {
 }
 
 #[test]
+fn check_report_identifies_what_was_checked_and_honours_strict_and_skip() {
+    let d = tempfile::tempdir().unwrap();
+    let model = demo("tiles.onnx");
+    let o = genloom(&["check", &model, "--json", "--seed", "7", "--skip", "diversity"], d.path());
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o.stderr));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    // The file's SHA-256 (FIPS 180-4) as coreutils' sha256sum computes it.
+    let sum = Command::new("sha256sum").arg(&model).output().unwrap();
+    let digest = text(&sum.stdout).split_whitespace().next().unwrap().to_string();
+    assert_eq!(v["model_sha256"], digest);
+    assert_eq!(v["genloom_version"], env!("CARGO_PKG_VERSION"));
+    assert_eq!(v["seed"], 7);
+    let thresholds = v["thresholds"].as_array().unwrap();
+    assert!(thresholds.len() >= 10);
+    assert!(thresholds.iter().all(|t| !t["source"].as_str().unwrap().is_empty()));
+    let skipped = v["checks"].as_array().unwrap().iter().find(|c| c["id"] == "diversity").unwrap();
+    assert_eq!(skipped["status"], "skip");
+    assert_eq!(skipped["detail"], "skipped on request");
+    assert!(v["activations"]["nodes"].as_array().unwrap().len() >= 4);
+    // A warning passes, unless --strict: 3.58% of the test generator's 8-bit values saturate
+    // (its Tanh reaches the extremes), past a 1% warning share.
+    let small = golden("models/nchw-tanh.onnx");
+    let o = genloom(&["check", &small, "--max-saturated", "0.01"], d.path());
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o.stderr));
+    assert!(text(&o.stdout).contains("WARN  range"), "{}", text(&o.stdout));
+    let o = genloom(&["check", &small, "--max-saturated", "0.01", "--strict"], d.path());
+    assert_eq!(o.status.code(), Some(1), "{}", text(&o.stdout));
+    assert!(text(&o.stdout).contains("strict"), "{}", text(&o.stdout));
+    // Bad values are refused, not clamped.
+    for bad in [["--max-batch", "1"], ["--max-batch", "100000"], ["--count", "3"], ["--max-duplicates", "2"]]
+    {
+        let o = genloom(&["check", &model, bad[0], bad[1]], d.path());
+        assert_eq!(o.status.code(), Some(2), "{bad:?}: {}", text(&o.stderr));
+    }
+    let o = genloom(&["check", &model, "--skip", "structure"], d.path());
+    assert_eq!(o.status.code(), Some(2), "{}", text(&o.stderr));
+}
+
+#[test]
 fn bench_reports_every_column() {
     let d = tempfile::tempdir().unwrap();
     let o = genloom(

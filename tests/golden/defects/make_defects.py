@@ -39,6 +39,7 @@ if __name__ == "__main__":
 import argparse  # noqa: E402
 import filecmp  # noqa: E402
 import importlib.metadata  # noqa: E402
+import io  # noqa: E402
 import json  # noqa: E402
 import math  # noqa: E402
 import tempfile  # noqa: E402
@@ -121,8 +122,8 @@ def up(src="h2", out="h3"):
                             kernel_shape=[4, 4], strides=[2, 2], pads=[1, 1, 1, 1])
 
 
-def tanh(src="h3"):
-    return helper.make_node("Tanh", [src], ["image"], name="tanh")
+def tanh(src="h3", out="image"):
+    return helper.make_node("Tanh", [src], [out], name="tanh")
 
 
 def weight_inits(w, fc_weight=None):
@@ -141,6 +142,50 @@ def run(m, z=None):
 
 def latents(seed, rows, dim=16):
     return np.random.default_rng(seed).standard_normal((rows, dim)).astype(np.float32)
+
+
+def truncated_latents(seed, rows, dim=16):
+    """N(0,1) latents with every |v| > 1 drawn again until none is left (the truncation trick)."""
+    rng = np.random.default_rng(seed)
+    x = rng.standard_normal((rows, dim))
+    while True:
+        far = np.abs(x) > 1.0
+        if not far.any():
+            return x.astype(np.float32)
+        x[far] = rng.standard_normal(int(far.sum()))
+
+
+def evaluate(m, z, dtype=np.float32):
+    """All graph outputs of m for latents z (fed as dtype), IEEE warnings silenced."""
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        return ReferenceEvaluator(m).run(None, {"z": np.ascontiguousarray(z, dtype=dtype)})
+
+
+def retype(m, dtype):
+    """m with every floating-point initializer, graph input and graph output turned into dtype."""
+    floats = (FLOAT, TensorProto.FLOAT16, TensorProto.DOUBLE)
+    elem = helper.np_dtype_to_tensor_dtype(np.dtype(dtype))
+    c = onnx.ModelProto()
+    c.CopyFrom(m)
+    for t in c.graph.initializer:
+        if t.data_type in floats:
+            with np.errstate(over="ignore"):
+                t.CopyFrom(numpy_helper.from_array(numpy_helper.to_array(t).astype(dtype), t.name))
+    for v in list(c.graph.input) + list(c.graph.output):
+        if v.type.tensor_type.elem_type in floats:
+            v.type.tensor_type.elem_type = elem
+    for n in c.graph.node:
+        for a in n.attribute:
+            assert a.type != onnx.AttributeProto.TENSOR or a.t.data_type not in floats, n.name
+    return c
+
+
+def npy_bytes(arr):
+    """np.save output of a float32 C-order array."""
+    arr = np.ascontiguousarray(arr, dtype=np.float32)
+    buf = io.BytesIO()
+    np.save(buf, arr, allow_pickle=False)
+    return buf.getvalue()
 
 
 def mean_pairwise(x):
@@ -166,7 +211,7 @@ def chi2_sf_even(x, k):
 # --------------------------------------------------------------------------
 
 def build_all():
-    """Returns [(file, model or raw bytes, checker note, manifest entry)]."""
+    """Returns [(file, model or raw bytes, manifest entry)]; the entry is None for a data file."""
     src, w = load_source()
     out = []
     ref_4 = latents(11, 4)
@@ -497,7 +542,274 @@ def build_all():
                     "[1,3,8,8] image, bit-equal to nchw-tanh at z = z_const (default_rng(9000))",
     })
 
-    # 10. good --------------------------------------------------------------
+    # 10. nan-large-latent -> finiteness ------------------------------------
+    # zr = z * Sqrt(4 - mean(z^2)): a renormalisation that is fine for N(0,1) latents
+    # (mean z^2 ~ 1) and NaN once mean(z^2) > 4, e.g. latents at 3x their norm (~ 9).
+    LIMIT = 4.0
+    nodes = [
+        helper.make_node("Mul", ["z", "z"], ["z2"], name="renorm_square"),
+        helper.make_node("ReduceMean", ["z2"], ["z2_mean"], name="renorm_mean",
+                         axes=[1], keepdims=1),
+        helper.make_node("Sub", ["renorm_limit", "z2_mean"], ["z_room"], name="renorm_margin"),
+        helper.make_node("Sqrt", ["z_room"], ["z_gain"], name="renorm_sqrt"),
+        helper.make_node("Mul", ["z", "z_gain"], ["zr"], name="renorm_scale"),
+        gemm("zr"),
+    ] + reshape() + [relu(), up(), tanh()]
+    m = make("nan-large-latent", nodes, weight_inits(w) + [scalar("renorm_limit", LIMIT)])
+    z = latents(14, 64)
+    zt = truncated_latents(14, 64)
+    assert np.abs(zt).max() <= 1.0
+    assert np.isfinite(run(m, z)).all() and np.isfinite(run(m, zt)).all()
+    share = {}
+    for k in (3, 10):
+        for label, base in (("typical", z), ("truncated", zt)):
+            y = run(m, k * base)
+            flat = np.isnan(y).reshape(len(y), -1)
+            assert np.array_equal(flat.any(axis=1), flat.all(axis=1))  # NaN everywhere or nowhere
+            assert np.isfinite(y[~flat.any(axis=1)]).all()
+            predicted = ((k * base).astype(np.float32).astype(np.float64) ** 2).mean(1) > LIMIT
+            assert np.array_equal(flat.any(axis=1), predicted), (k, label)
+            share[(k, label)] = int(flat.any(axis=1).sum())
+    assert share[(10, "typical")] == 64 and share[(10, "truncated")] == 64
+    assert share[(3, "typical")] >= 58, share  # P(finite at 3x) = P(chi2(16) < 64/9) ~ 2.4%
+    p_finite_3x = 1.0 - chi2_sf_even(16 * LIMIT / 9.0, 16)
+    # What an engine whose Relu maps NaN to 0 returns at 3x: the Gemm output is NaN, Relu(NaN)
+    # = 0 there, so the image is tanh(up.bias): finite.
+    probe = make("renorm-probe", nodes[:-2], weight_inits(w) + [scalar("renorm_limit", LIMIT)],
+                 outputs=[vi("h1", ["N", 32, 4, 4])])
+    (h1,) = evaluate(probe, 3 * z)
+    nan_rows = np.isnan(h1).reshape(64, -1).all(axis=1)
+    assert nan_rows.sum() == share[(3, "typical")]
+    tail = make("up-tanh", [up(), tanh()], weight_inits(w)[2:],  # also used by nan_case
+                inputs=[vi("h2", ["N", 32, 4, 4])])
+    with np.errstate(invalid="ignore"):
+        (hidden,) = ReferenceEvaluator(tail).run(None, {"h2": np.fmax(h1, np.float32(0))})
+    assert np.isfinite(hidden).all()
+    add("nan-large-latent.onnx", m, {
+        "defect": "the latent is renormalised before the Gemm: zr = z * Sqrt(4 - "
+                  "ReduceMean(z*z, axes=[1], keepdims=1)); for N(0,1) latents mean(z^2) is "
+                  "about 1 and all is finite, for latents at 3x their norm it is about 9 and "
+                  "the square root, hence the whole image, is NaN",
+        "fails": "finiteness", "also_fails": [],
+        "defect_node": "renorm_sqrt",
+        "evidence": "64 default_rng(14) latents and a truncated set (default_rng(14), every "
+                    "|v| > 1 drawn again): every output finite at 1x. At 3x: %d of 64 typical "
+                    "images NaN in every pixel, the others finite (NaN exactly where "
+                    "mean((3z)^2) > 4; an N(0,1) latent stays finite at 3x with probability "
+                    "P(chi2(16) < 64/9) = %s), %d of 64 truncated ones NaN. At 10x: "
+                    "64 of 64 NaN in every pixel, typical and truncated. At 3x the Gemm output "
+                    "of every NaN image is NaN in all 512 values; with NaN mapped to 0 by the "
+                    "Relu the 3x images are finite"
+                    % (share[(3, "typical")], g3(p_finite_3x), share[(3, "truncated")]),
+        "note": "an engine whose Relu computes max(x, 0) with NaN -> 0 (genloom's tract "
+                "build does, see tests/integration/check.rs) returns "
+                "finite images at 3x: the NaN is made at renorm_sqrt and hidden mid-graph, so "
+                "the gate must look at activations, not only at the images",
+    })
+
+    # 11-14. NaN made by Sqrt(h) for h < 0 and swallowed by an op that an engine may
+    # implement as max/min with NaN -> number (Relu, Max, Clip, a final Clip).
+    def nan_case(file, nodes, inits, before, hider, hide, about):
+        m = make(file[:-5], nodes, weight_inits(w) + inits)
+        z = latents(16, 64)
+        y = run(m, z)
+        nan_img = np.isnan(y).reshape(64, -1).any(axis=1)
+        nan_val = float(np.isnan(y).mean())
+        assert nan_img.mean() > 0.5 and nan_val > 0.1, (file, nan_img.mean(), nan_val)
+        upto = [n for n in nodes if n.name != hider][:[n.name for n in nodes].index(hider)]
+        probe = make(file[:-5] + "-probe", upto, weight_inits(w) + inits,
+                     outputs=[vi(before, None)])
+        (b,) = evaluate(probe, z)
+        nan_before = float(np.isnan(b).mean())
+        assert nan_before > 0.2, (file, nan_before)
+        # What the image is if the hiding op maps NaN to a number (numpy fmax/fmin).
+        hidden = hide(b)
+        if hider != "final_clamp":
+            with np.errstate(invalid="ignore"):
+                (hidden,) = ReferenceEvaluator(tail).run(None, {"h2": hidden})
+        assert hidden.shape == y.shape and np.isfinite(hidden).all()
+        add(file, m, {
+            "defect": about,
+            "fails": "finiteness", "also_fails": [],
+            "defect_node": "nan_sqrt",
+            "evidence": "64 default_rng(16) latents: %d images (%s%%) have NaN, %s%% of all "
+                        "output values are NaN; the input of %s (output of the op before it) "
+                        "is NaN in %s%% of its values; with NaN mapped to a number there "
+                        "(numpy fmax/fmin) every image is finite"
+                        % (int(nan_img.sum()), g3(100 * nan_img.mean()), g3(100 * nan_val),
+                           hider, g3(100 * nan_before)),
+            "note": "ONNX operators are element-wise IEEE 754 arithmetic and the reference "
+                    "evaluator propagates the NaN through %s; an engine that implements it as "
+                    "max/min with NaN -> number hides it, so the gate must find it in the "
+                    "activations and name nan_sqrt" % hider,
+        })
+        return m, y, b
+
+    def finish(src, hider_nodes):
+        return reshape(src) + hider_nodes + [up(), tanh()]
+
+    sqrt_h0 = helper.make_node("Sqrt", ["h0"], ["h0s"], name="nan_sqrt")
+    nan_case("nan-relu.onnx", [gemm(), sqrt_h0] + finish("h0s", [relu()]), [],
+             "h1", "relu", lambda b: np.fmax(b, np.float32(0)),
+             "Sqrt of the Gemm output (nan_sqrt: NaN where it is negative, about half the "
+             "values), then the usual Reshape -> Relu -> ConvTranspose -> Tanh")
+    nan_case("nan-max.onnx",
+             [gemm(), sqrt_h0] + finish("h0s", [
+                 helper.make_node("Max", ["h1", "zero"], ["h2"], name="max_zero")]),
+             [scalar("zero", 0.0)],
+             "h1", "max_zero", lambda b: np.fmax(b, np.float32(0)),
+             "Sqrt of the Gemm output (nan_sqrt), then Reshape and, in place of the Relu, "
+             "Max(h, 0) with a scalar zero initializer (max_zero)")
+    nan_case("nan-clip.onnx",
+             [gemm(), sqrt_h0] + finish("h0s", [
+                 helper.make_node("Clip", ["h1", "clip_min", "clip_max"], ["h2"],
+                                  name="clip6")]),
+             [scalar("clip_min", 0.0), scalar("clip_max", 6.0)],
+             "h1", "clip6", lambda b: np.fmin(np.fmax(b, np.float32(0)), np.float32(6)),
+             "Sqrt of the Gemm output (nan_sqrt), then Reshape and, in place of the Relu, "
+             "Clip(h, 0, 6) (clip6, min and max as scalar initializer inputs)")
+    # The final clamp: h3 + 1e-30 * Sqrt(h3), then Clip(-1, 1) as the last op (no Tanh).
+    nodes = [gemm()] + reshape() + [relu(), up(),
+        helper.make_node("Sqrt", ["h3"], ["h3r"], name="nan_sqrt"),
+        helper.make_node("Mul", ["h3r", "tiny"], ["h3t"], name="nan_scale"),
+        helper.make_node("Add", ["h3", "h3t"], ["h3n"], name="nan_inject"),
+        helper.make_node("Clip", ["h3n", "clamp_lo", "clamp_hi"], ["image"], name="final_clamp"),
+    ]
+    _, y, _ = nan_case(
+        "nan-final-clamp.onnx", nodes,
+        [scalar("tiny", 1e-30), scalar("clamp_lo", -1.0), scalar("clamp_hi", 1.0)],
+        "h3n", "final_clamp", lambda b: np.fmin(np.fmax(b, np.float32(-1)), np.float32(1)),
+        "gemm -> reshape -> relu -> up, then 1e-30 * Sqrt(h3) (nan_sqrt, nan_scale: NaN where "
+        "h3 < 0) added to h3 (nan_inject), and the last op is Clip(-1, 1) (final_clamp) "
+        "producing the image, no Tanh")
+    # Where it is not NaN, the term is too small to matter: the image is Clip(h3, -1, 1).
+    probe = make("final-clamp-probe", [gemm()] + reshape() + [relu(), up()], weight_inits(w),
+                 outputs=[vi("h3", ["N", 3, 8, 8])])
+    (h3,) = evaluate(probe, latents(16, 64))
+    ok = ~np.isnan(y)
+    assert np.array_equal(np.isnan(y), h3 < 0)
+    assert np.array_equal(y[ok], np.clip(h3, -1, 1)[ok])
+    out[-1][2]["note"] += ("; the multiplier is 1e-30, not 0, because tract folds a "
+                           "multiplication by zero. Where h3 >= 0 the image is bit-equal to "
+                           "Clip(h3, -1, 1), and it is NaN exactly where h3 < 0")
+
+    # 15. f16-overflow -> passes the f32 gate; an activation past binary16's range ----------
+    # amplify * 2^15 and attenuate * 2^-15 (powers of two: exact in float32, so the output is
+    # bit-equal to nchw-tanh's; both factors are exact float16 values, so storing the
+    # initializers as float16 changes nothing). attenuate sits before the Relu: after the
+    # ConvTranspose it would scale up.bias too, and the output would not be nchw-tanh's.
+    F16_MAX = float(np.finfo(np.float16).max)
+    assert F16_MAX == 65504.0
+    AMP = 2.0 ** 15
+    f16_inits = weight_inits(w) + [scalar("amp_gain", AMP), scalar("att_gain", 1.0 / AMP)]
+    nodes = [
+        gemm(),
+        helper.make_node("Mul", ["h0", "amp_gain"], ["h0a"], name="amplify"),
+    ] + reshape("h0a") + [
+        helper.make_node("Mul", ["h1", "att_gain"], ["h1a"], name="attenuate"),
+        relu("h1a"), up(), tanh(),
+    ]
+    m = make("f16-overflow", nodes, f16_inits)
+    z = latents(15, 64)
+    y, good = run(m, z), run(src, z)
+    diff = float(np.abs(y - good).max())
+    assert diff < 1e-5 and np.array_equal(y, good), diff
+    names = ["h0", "h0a", "h1", "h1a", "h2", "h3", "image"]
+    probe = make("f16-probe", nodes, f16_inits,
+                 outputs=[vi(n, None) for n in names])
+    acts = dict(zip(names, evaluate(probe, z)))
+    amp_max = float(np.abs(acts["h0a"]).max())
+    assert amp_max > F16_MAX, amp_max
+    assert float(np.abs(acts["h1"]).max()) == amp_max  # the Reshape is a view of it
+    others = max(float(np.abs(acts[n]).max()) for n in ["h0", "h1a", "h2", "h3", "image"])
+    assert others < 100, others
+    # The same model in float16, initializers, input and outputs.
+    for t in f16_inits:
+        a = numpy_helper.to_array(t)
+        assert np.isfinite(a.astype(np.float16)).all(), t.name
+        if t.name in ("amp_gain", "att_gain"):
+            assert a.astype(np.float16).astype(np.float32) == a, t.name
+    stored = retype(retype(m, np.float16), np.float32)  # f16 weight storage, f32 compute
+    y_stored = run(stored, z)
+    assert np.isfinite(y_stored).all()
+    stored_err = float(np.abs(y_stored - good).max())
+    assert stored_err < 0.05, stored_err
+    acts16 = dict(zip(names, evaluate(retype(probe, np.float16), z, np.float16)))
+    assert all(a.dtype == np.float16 for a in acts16.values())
+    amp_inf = float(np.isinf(acts16["h0a"]).mean())
+    img_bad = float((~np.isfinite(acts16["image"])).mean())
+    assert amp_inf > 0 and np.isfinite(acts16["h0"]).all(), amp_inf
+    assert amp_inf > 0 or img_bad > 0
+    add("f16-overflow.onnx", m, {
+        "defect": "after the Gemm, amplify multiplies by 2^15 = 32768 and, after the "
+                  "Reshape, attenuate multiplies by 2^-15: in float32 the image is unchanged, "
+                  "but amplify's output goes past 65504, the largest finite IEEE 754 binary16 "
+                  "value, so float16 compute overflows there",
+        "fails": None, "also_fails": [],
+        "f16_overflow_node": "amplify",
+        "evidence": "64 default_rng(15) latents: the float32 output is bit-equal to "
+                    "nchw-tanh's (max abs difference %s); max |amplify output| = %s > 65504 "
+                    "(f16 headroom %s; the Reshape output is the same values); every other "
+                    "node output stays within max abs %s. The model in float16 (initializers, "
+                    "input, outputs): %s%% of amplify's outputs are inf and %s%% of the image "
+                    "values are inf or NaN. Initializers stored as float16 and computed in "
+                    "float32: finite, within %s of nchw-tanh"
+                    % (g3(diff), g3(amp_max), g3(F16_MAX / amp_max), g3(others),
+                       g3(100 * amp_inf), g3(100 * img_bad), g3(stored_err)),
+        "note": "the f32 gate passes it; it is a fixture for the f16 warnings: f16 compute "
+                "must refuse it, an f16 (weight storage) export must warn, naming amplify. "
+                "Factors are powers of two, not 1e5 / 1e-5: 1e5 is past 65504 itself (inf as "
+                "a float16 initializer), and 2^k keeps the float32 output exact",
+    })
+
+    # 16. range255-nhwc -> parity at a [0, 255] output range ---------------------------
+    nodes = [gemm()] + reshape() + [relu(), up(), tanh(out="h4"),
+        helper.make_node("Mul", ["h4", "to255_gain"], ["h5"], name="to255_mul"),
+        helper.make_node("Add", ["h5", "to255_offset"], ["h6"], name="to255_add"),
+        helper.make_node("Transpose", ["h6"], ["image"], name="to_nhwc", perm=[0, 2, 3, 1]),
+    ]
+    m = make("range255-nhwc", nodes,
+             weight_inits(w) + [scalar("to255_gain", 127.5), scalar("to255_offset", 127.5)],
+             outputs=[vi("image", ["N", 8, 8, 3])])
+    z = latents(21, 16)
+    y32 = run(m, z)
+    (y64,) = evaluate(retype(m, np.float64), z, np.float64)
+    assert y64.dtype == np.float64 and y32.shape == (16, 8, 8, 3)
+    ref = y64.astype(np.float32)
+    assert np.isfinite(ref).all() and ref.min() >= 0 and ref.max() <= 255
+    good = run(src, z)
+    assert np.allclose(y32, 127.5 * good.transpose(0, 2, 3, 1) + 127.5, atol=1e-4, rtol=0)
+    par = float(np.abs(y32 - ref).max())
+    assert par < 1e-3, par
+    off = ref.copy()
+    off[3] += np.float32(0.5)
+    off_err = float(np.abs(y32 - off).max())
+    off_other = float(np.abs(np.delete(y32 - off, 3, axis=0)).max())
+    assert 0.49 < off_err < 0.51 and off_other == par, (off_err, off_other)
+    files = {"range255-z.npy": z, "range255-out.npy": ref, "range255-off.npy": off}
+    add("range255-nhwc.onnx", m, {
+        "defect": "none: nchw-tanh with its output mapped to [0, 255] (to255_mul * 127.5, "
+                  "to255_add + 127.5) and transposed to NHWC (to_nhwc, perm [0,2,3,1]), image "
+                  "[N,8,8,3]; a parity-framework fixture that must pass",
+        "fails": None, "also_fails": [],
+        "reference_latents": "range255-z.npy",
+        "reference_outputs": "range255-out.npy",
+        "reference_off": "range255-off.npy",
+        "evidence": "16 default_rng(21) latents (range255-z.npy, float32 [16,16]); "
+                    "range255-out.npy is the ReferenceEvaluator output of the model with "
+                    "initializers, input and output in float64, cast to float32 [16,8,8,3], "
+                    "values in [%s, %s]; the float32 ReferenceEvaluator output differs from "
+                    "it by max abs %s. range255-off.npy is range255-out.npy with 0.5 (half an "
+                    "8-bit level) added to every value of image 3: max abs %s from the float32 "
+                    "output (%s outside image 3)"
+                    % (g3(ref.min()), g3(ref.max()), g3(par), g3(off_err), g3(off_other)),
+        "note": "range255-off.npy is a reference that must be refused by parity-framework: "
+                "half an 8-bit level is a real defect at this range",
+    })
+    for name, arr in files.items():
+        out.append((name, npy_bytes(arr), None))
+
+    # 17. good --------------------------------------------------------------
     raw = SOURCE.read_bytes()
     good_model = onnx.load_from_string(raw)
     onnx.checker.check_model(good_model, full_check=True)
@@ -525,6 +837,8 @@ def generate(out_dir):
             assert model.ir_version == IR and model.opset_import[0].version == OPSET
         with open(out_dir / file, "wb") as f:
             f.write(data)
+        if entry is None:  # a data file (.npy) that a model entry names
+            continue
         entry["bytes"] = len(data)
         entries.append(entry)
     manifest = {
@@ -539,6 +853,12 @@ def generate(out_dir):
             "defect_node": "node (and attribute) that carries the defect",
             "evidence": "what make_defects.py asserted, with measured figures (3 significant "
                         "digits)",
+            "f16_overflow_node": "node whose float32 output goes past 65504, the largest finite "
+                                 "IEEE 754 binary16 value (f16-overflow only)",
+            "reference_latents, reference_outputs, reference_off": "float32 .npy files "
+                "(numpy.save) in this folder: latents, framework reference outputs the model "
+                "must match, and a reference off by a real defect that parity must refuse "
+                "(range255-nhwc only)",
             "checker": "how onnx.checker was run on it",
             "bytes": "file size",
         },
@@ -613,7 +933,9 @@ def main(argv=None):
     if args.check:
         return run_check(out)
     generate(out)
-    print("wrote %d defect models and manifest.json" % (len(_listing(out)) - 1))
+    listing = _listing(out)
+    print("wrote %d defect models, %d .npy files and manifest.json"
+          % (sum(n.endswith(".onnx") for n in listing), sum(n.endswith(".npy") for n in listing)))
     return 0
 
 
