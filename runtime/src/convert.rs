@@ -21,9 +21,9 @@
 //! gives byte-identical files.
 
 use crate::error::{Error, Result};
-use crate::graph::{self, dt, Names};
 use crate::metrics::Fidelity;
 use crate::model::{LoadOptions, Model};
+use crate::onnx::{self, dt, Names};
 use crate::passes::PassResult;
 use crate::{Generator, GeneratorOptions, SampleOptions};
 use std::collections::BTreeMap;
@@ -181,7 +181,7 @@ fn channel_axis(n: &pb::NodeProto, rank: usize) -> usize {
     match n.op_type.as_str() {
         "Conv" => 0,
         "ConvTranspose" => 1,
-        "Gemm" if graph::attr_i(n, "transB", 0) == 1 => 0,
+        "Gemm" if onnx::attr_i(n, "transB", 0) == 1 => 0,
         _ => rank.saturating_sub(1),
     }
 }
@@ -256,7 +256,7 @@ pub fn convert(source: &Model, options: &ConvertOptions) -> Result<Export> {
         let names_of: Vec<String> = layers.iter().map(|(i, _)| g.node[*i].name.clone()).collect();
         let keep: Vec<String> = match &options.keep_float {
             KeepFloat::FirstAndLast if options.precision == Precision::Int8 => {
-                let size = |w: &str| consts.get(w).map(|&i| graph::numel(&g.initializer[i])).unwrap_or(0);
+                let size = |w: &str| consts.get(w).map(|&i| onnx::numel(&g.initializer[i])).unwrap_or(0);
                 let total: usize = layers.iter().map(|(_, w)| size(w)).sum();
                 let ends = [layers.first(), layers.last()];
                 let mut k: Vec<String> = ends
@@ -309,7 +309,7 @@ pub fn convert(source: &Model, options: &ConvertOptions) -> Result<Export> {
         let mut new_inits = vec![];
         let mut kept = vec![];
         for t in std::mem::take(&mut g.initializer) {
-            let n = graph::numel(&t);
+            let n = onnx::numel(&t);
             let node = reader.get(&t.name).map(|&i| &g.node[i]);
             let node_name = node.map(|n| n.name.clone());
             let is_float = t.data_type == dt::FLOAT;
@@ -338,7 +338,7 @@ pub fn convert(source: &Model, options: &ConvertOptions) -> Result<Export> {
                 kept.push(t);
                 continue;
             }
-            let values = graph::read_f32(&t)?;
+            let values = onnx::read_f32(&t)?;
             match options.precision {
                 Precision::F16 => match to_f16(&values) {
                     Ok(bits) => {
@@ -413,7 +413,7 @@ pub fn convert(source: &Model, options: &ConvertOptions) -> Result<Export> {
                         raw_data: q.iter().map(|&v| v as u8).collect(),
                         ..Default::default()
                     });
-                    new_inits.push(graph::f32_tensor(&sname, &sdims, &scales));
+                    new_inits.push(onnx::f32_tensor(&sname, &sdims, &scales));
                     new_inits.push(pb::TensorProto {
                         name: zname.clone(),
                         dims: sdims.clone(),
@@ -607,7 +607,7 @@ pub fn compare_generators(
 ) -> Result<Fidelity> {
     same_signature("generators", reference.signature(), other.signature())?;
     let latents = reference.sample_latents(&SampleOptions::new(seed, count))?;
-    let labels = crate::generate::cycle_labels(reference.signature(), count);
+    let labels = reference.signature().cycle_labels(count);
     let ia = reference.generate(&latents, labels.as_deref())?;
     let ib = other.generate(&latents, labels.as_deref())?;
     crate::metrics::fidelity(&ia, &ib)

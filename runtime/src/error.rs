@@ -127,6 +127,9 @@ pub enum Error {
     Tract {
         /// What was being done ("parse the model", "optimise the batch-8 plan", ...).
         action: String,
+        /// Whether it failed preparing the model (parsing, typing, optimising, building a plan)
+        /// or running it.
+        stage: TractStage,
         /// tract's error, with its whole chain.
         #[source]
         source: BoxError,
@@ -279,10 +282,66 @@ pub enum Error {
     },
 }
 
+/// Where a tract step failed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[non_exhaustive]
+pub enum TractStage {
+    /// Parsing, typing, optimising, or building a plan: the model cannot be prepared.
+    Prepare,
+    /// Running a plan on inputs.
+    Run,
+}
+
+/// The kind of an [`Error`]: what a binding maps to its own vocabulary (a C status, an exit
+/// code, a JS error name, a Python exception class), each with one match.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+#[non_exhaustive]
+pub enum ErrorKind {
+    /// The model could not be read or prepared (bad bytes, malformed graph, an operator or a
+    /// shape tract refuses).
+    Load,
+    /// The model loaded but does not look like a supported generator.
+    Signature,
+    /// A value given by the caller is outside what is accepted.
+    InvalidArgument,
+    /// An NPY file or buffer could not be read.
+    Npy,
+    /// Running the model failed, or its output broke the signature.
+    Inference,
+    /// The caller cancelled.
+    Cancelled,
+    /// A request went past a limit.
+    Limit,
+    /// A file could not be read or written, or an image could not be encoded.
+    Io,
+}
+
+impl ErrorKind {
+    /// A short stable name: `load`, `signature`, `argument`, `npy`, `inference`, `cancelled`,
+    /// `limits` or `io`.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            ErrorKind::Load => "load",
+            ErrorKind::Signature => "signature",
+            ErrorKind::InvalidArgument => "argument",
+            ErrorKind::Npy => "npy",
+            ErrorKind::Inference => "inference",
+            ErrorKind::Cancelled => "cancelled",
+            ErrorKind::Limit => "limits",
+            ErrorKind::Io => "io",
+        }
+    }
+}
+
+impl std::fmt::Display for ErrorKind {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
 impl Error {
-    /// A short stable name of the error's group: `load`, `signature`, `latent`, `npy`,
-    /// `inference`, `limits` or `io`. Bindings map it to status codes.
-    pub fn group(&self) -> &'static str {
+    /// The error's kind.
+    pub fn kind(&self) -> ErrorKind {
         match self {
             Error::EmptyModel { .. }
             | Error::HtmlPage { .. }
@@ -294,24 +353,47 @@ impl Error {
             | Error::ExternalDataRange { .. }
             | Error::TensorSize { .. }
             | Error::Graph { .. }
-            | Error::UnsupportedOperator { .. } => "load",
-            Error::Tract { .. } => "tract",
-            Error::Signature { .. } | Error::RangeUnknown { .. } => "signature",
+            | Error::UnsupportedOperator { .. }
+            | Error::Tract { stage: TractStage::Prepare, .. } => ErrorKind::Load,
+            Error::Tract { stage: TractStage::Run, .. } | Error::Output { .. } => ErrorKind::Inference,
+            Error::Signature { .. } | Error::RangeUnknown { .. } => ErrorKind::Signature,
             Error::LatentDim { .. }
             | Error::NonFiniteLatent { .. }
             | Error::LabelOutOfRange { .. }
             | Error::Labels { .. }
             | Error::InvalidOption { .. }
-            | Error::F16Overflow { .. } => "argument",
-            Error::Npy { .. } => "npy",
-            Error::Output { .. } | Error::Cancelled { .. } => "inference",
-            Error::Limit { .. } => "limits",
-            Error::Io { .. } | Error::Image { .. } => "io",
+            | Error::F16Overflow { .. } => ErrorKind::InvalidArgument,
+            Error::Npy { .. } => ErrorKind::Npy,
+            Error::Cancelled { .. } => ErrorKind::Cancelled,
+            Error::Limit { .. } => ErrorKind::Limit,
+            Error::Io { .. } | Error::Image { .. } => ErrorKind::Io,
         }
     }
 
+    /// The message with every cause underneath it (tract's own chain included), joined by
+    /// ": ": what a binding that has only a string to hand over (C, JS) should show.
+    pub fn chain(&self) -> String {
+        let mut s = self.to_string();
+        let mut cause = std::error::Error::source(self);
+        while let Some(c) = cause {
+            let text = c.to_string();
+            if !s.contains(&text) {
+                s.push_str(": ");
+                s.push_str(&text);
+            }
+            cause = c.source();
+        }
+        s
+    }
+
+    /// A tract failure while preparing the model.
     pub(crate) fn tract(action: impl Into<String>, e: impl Into<BoxError>) -> Error {
-        Error::Tract { action: action.into(), source: e.into() }
+        Error::Tract { action: action.into(), stage: TractStage::Prepare, source: e.into() }
+    }
+
+    /// A tract failure while running a plan.
+    pub(crate) fn tract_run(action: impl Into<String>, e: impl Into<BoxError>) -> Error {
+        Error::Tract { action: action.into(), stage: TractStage::Run, source: e.into() }
     }
 
     pub(crate) fn invalid(
@@ -329,3 +411,23 @@ impl Error {
 
 /// The runtime's result type.
 pub type Result<T, E = Error> = std::result::Result<T, E>;
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn tract_errors_are_split_by_stage_and_keep_their_cause() {
+        let inner: BoxError = "inner cause".into();
+        let e = Error::tract("type the model", inner);
+        assert_eq!(e.kind(), ErrorKind::Load);
+        assert_eq!(e.chain(), "tract could not type the model: inner cause");
+        let e = Error::tract_run("run a batch of 8", std::io::Error::other("deeper"));
+        assert_eq!(e.kind(), ErrorKind::Inference);
+        assert_eq!(e.kind().as_str(), "inference");
+        // A cause already quoted by the message is not repeated.
+        let io = Error::io("read", "m.onnx", std::io::Error::other("gone"));
+        assert_eq!(io.chain(), io.to_string());
+        assert_eq!(io.kind(), ErrorKind::Io);
+    }
+}

@@ -432,14 +432,14 @@ impl Generator {
         let inputs = crate::plan::input_values(&self.model, &z, labels.as_deref(), batch)?;
         let plan = self.plans.plan_for(batch)?;
         let inputs = crate::plan::cast_inputs(&plan, inputs)?;
-        let outputs = crate::model::guard(format!("run a batch of {batch}"), || plan.run(inputs))?;
+        let outputs = crate::model::guard_run(format!("run a batch of {batch}"), || plan.run(inputs))?;
         let out = outputs.get(self.model.output_index).ok_or_else(|| Error::Output {
             reason: format!("the model returned {} outputs", outputs.len()),
         })?;
-        let out = out.cast_to::<f32>().map_err(|e| Error::tract("read the output as f32", e))?;
+        let out = out.cast_to::<f32>().map_err(|e| Error::tract_run("read the output as f32", e))?;
         let per = sig.image.values_per_image();
-        let view = out.try_as_plain_ram().map_err(|e| Error::tract("read the output", e))?;
-        let values = view.as_slice::<f32>().map_err(|e| Error::tract("read the output", e))?;
+        let view = out.try_as_plain_ram().map_err(|e| Error::tract_run("read the output", e))?;
+        let values = view.as_slice::<f32>().map_err(|e| Error::tract_run("read the output", e))?;
         if values.len() != batch * per {
             return Err(Error::Output {
                 reason: format!(
@@ -453,13 +453,6 @@ impl Generator {
         }
         Ok(values[..n * per].to_vec())
     }
-}
-
-/// Labels `0, 1, ..., classes - 1, 0, 1, ...` for `count` images of a conditional model (`None`
-/// for an unconditional one): how genloom fills the labels of a request that gives none, so
-/// that a batch shows every class.
-pub fn cycle_labels(signature: &Signature, count: usize) -> Option<Vec<i64>> {
-    signature.label.as_ref().map(|l| (0..count).map(|i| (i % l.classes.max(1)) as i64).collect())
 }
 
 #[cfg(test)]

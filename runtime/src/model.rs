@@ -4,7 +4,8 @@
 //! data safely, checks the graph, parses it with tract, discovers the signature and reports what
 //! the model is made of ([`ModelInfo`]). A [`crate::Generator`] is built from a [`Model`].
 
-use crate::error::{Error, Result};
+use crate::error::{BoxError, Error, Result, TractStage};
+use crate::onnx::{dtype_name, elem_size, element_count, for_each_tensor_mut};
 use crate::signature::{self, Signature, SignatureOverrides};
 use sha2::{Digest, Sha256};
 use std::collections::{BTreeMap, HashMap, HashSet};
@@ -283,16 +284,30 @@ pub(crate) fn read_raw(bytes: &[u8], what: &str, dir: Option<&Path>, limits: &Li
 /// large engine, and a model that reaches an unimplemented path in it must not take the host
 /// application down.
 pub(crate) fn guard<T>(action: impl Into<String>, f: impl FnOnce() -> TractResult<T>) -> Result<T> {
+    guard_stage(TractStage::Prepare, action, f)
+}
+
+/// As [`guard`], for running a plan: its failures are inference errors.
+pub(crate) fn guard_run<T>(action: impl Into<String>, f: impl FnOnce() -> TractResult<T>) -> Result<T> {
+    guard_stage(TractStage::Run, action, f)
+}
+
+fn guard_stage<T>(
+    stage: TractStage,
+    action: impl Into<String>,
+    f: impl FnOnce() -> TractResult<T>,
+) -> Result<T> {
+    let make = |action: String, e: BoxError| Error::Tract { action, stage, source: e };
     match std::panic::catch_unwind(std::panic::AssertUnwindSafe(f)) {
         Ok(Ok(v)) => Ok(v),
-        Ok(Err(e)) => Err(Error::tract(action, e)),
+        Ok(Err(e)) => Err(make(action.into(), e.into())),
         Err(panic) => {
             let msg = panic
                 .downcast_ref::<&str>()
                 .map(|s| s.to_string())
                 .or_else(|| panic.downcast_ref::<String>().cloned())
                 .unwrap_or_else(|| "an unknown panic".into());
-            Err(Error::tract(action, format!("tract stopped on an internal error (panic: {msg})")))
+            Err(make(action.into(), format!("tract stopped on an internal error (panic: {msg})").into()))
         }
     }
 }
@@ -367,63 +382,6 @@ fn decode(bytes: &[u8], what: &str) -> Result<pb::ModelProto> {
 }
 
 const EXTERNAL: i32 = 1;
-
-fn elem_size(data_type: i32) -> Option<usize> {
-    use pb::tensor_proto::DataType as D;
-    Some(match D::try_from(data_type).ok()? {
-        D::Float | D::Int32 | D::Uint32 => 4,
-        D::Uint8 | D::Int8 | D::Bool => 1,
-        D::Uint16 | D::Int16 | D::Float16 | D::Bfloat16 => 2,
-        D::Int64 | D::Double | D::Uint64 | D::Complex64 => 8,
-        D::Complex128 => 16,
-        _ => return None,
-    })
-}
-
-pub(crate) fn dtype_name(data_type: i32) -> String {
-    pb::tensor_proto::DataType::try_from(data_type)
-        .map(|d| d.as_str_name().to_ascii_lowercase())
-        .unwrap_or_else(|_| format!("type {data_type}"))
-}
-
-fn element_count(t: &pb::TensorProto) -> Result<u64> {
-    let mut n: u64 = 1;
-    for &d in &t.dims {
-        if d < 0 {
-            return Err(Error::Graph {
-                reason: format!("tensor `{}` has a negative dimension {d} in {:?}", t.name, t.dims),
-            });
-        }
-        n = n.checked_mul(d as u64).ok_or_else(|| Error::Limit {
-            limit: format!("the element count of tensor `{}`", t.name),
-            actual: u64::MAX,
-            max: u64::MAX,
-            setting: "Limits::max_parameters".into(),
-        })?;
-    }
-    Ok(n)
-}
-
-/// Every tensor stored in the graph: initializers and Constant nodes' `value` attributes.
-fn for_each_tensor_mut(
-    graph: &mut pb::GraphProto,
-    f: &mut dyn FnMut(&mut pb::TensorProto) -> Result<()>,
-) -> Result<()> {
-    for t in &mut graph.initializer {
-        f(t)?;
-    }
-    for n in &mut graph.node {
-        for a in &mut n.attribute {
-            if let Some(t) = a.t.as_mut() {
-                f(t)?;
-            }
-            if let Some(g) = a.g.as_mut() {
-                for_each_tensor_mut(g, f)?;
-            }
-        }
-    }
-    Ok(())
-}
 
 /// Checks an external-data location: a relative path of normal components only.
 pub(crate) fn check_location(tensor: &str, location: &str) -> Result<()> {

@@ -18,7 +18,7 @@
 //! already folded.
 
 use crate::error::{Error, Result};
-use crate::graph::{self, dt, Names};
+use crate::onnx::{self, dt, Names};
 use std::collections::HashMap;
 use tract_onnx::pb;
 
@@ -74,7 +74,7 @@ pub fn run(model: &mut pb::ModelProto, options: &PassOptions) -> Result<Vec<Pass
      -> Result<()> {
         let before = g.node.len();
         let changes = f(g)?;
-        graph::prune_constants(g);
+        onnx::prune_constants(g);
         if !changes.is_empty() {
             report.push(PassResult {
                 pass: name.into(),
@@ -107,16 +107,16 @@ fn bypass(g: &mut pb::GraphProto, idx: usize, inp: &str, out: &str) -> bool {
     let out_is_graph_output = g.output.iter().any(|o| o.name == out);
     if out_is_graph_output {
         let inp_is_free = !is_graph_io(g, inp) && !g.initializer.iter().any(|t| t.name == inp);
-        let producer = graph::producers(g).get(inp).copied();
+        let producer = onnx::producers(g).get(inp).copied();
         let (Some(p), true) = (producer, inp_is_free) else { return false };
         for o in &mut g.node[p].output {
             if o == inp {
                 *o = out.to_string();
             }
         }
-        graph::rename_uses(g, inp, out);
+        onnx::rename_uses(g, inp, out);
     } else {
-        graph::rename_uses(g, out, inp);
+        onnx::rename_uses(g, out, inp);
     }
     g.node.remove(idx);
     true
@@ -125,9 +125,9 @@ fn bypass(g: &mut pb::GraphProto, idx: usize, inp: &str, out: &str) -> bool {
 fn drop_identity(g: &mut pb::GraphProto) -> Result<Vec<String>> {
     // Decide first (reading the graph once), then rewrite.
     let removable: Vec<String> = {
-        let consts = graph::constants(g);
+        let consts = onnx::constants(g);
         let shapes = value_shapes(g);
-        let uses = graph::use_counts(g);
+        let uses = onnx::use_counts(g);
         g.node
             .iter()
             .filter(|n| identity_like(n, &consts, &shapes, &uses))
@@ -162,14 +162,14 @@ fn identity_like(
         "Dropout" => {
             let mask_read = n.output.get(1).is_some_and(|m| !m.is_empty() && uses.contains_key(m));
             let training = n.input.get(2).filter(|s| !s.is_empty()).map(|s| {
-                consts.get(s.as_str()).and_then(|t| graph::read_i64(t).ok()).map(|v| v.first() == Some(&1))
+                consts.get(s.as_str()).and_then(|t| onnx::read_i64(t).ok()).map(|v| v.first() == Some(&1))
             });
             // Training mode given by a non-constant input: leave it for the release gate.
             !mask_read && matches!(training, None | Some(Some(false)))
         }
         "Reshape" => {
             let target =
-                n.input.get(1).and_then(|s| consts.get(s.as_str())).and_then(|t| graph::read_i64(t).ok());
+                n.input.get(1).and_then(|s| consts.get(s.as_str())).and_then(|t| onnx::read_i64(t).ok());
             match (target, shapes.get(&n.input[0])) {
                 (Some(t), Some(shape)) => {
                     t.len() == shape.len()
@@ -219,11 +219,11 @@ fn eval_const(n: &pb::NodeProto, inputs: &[Option<&pb::TensorProto>]) -> Result<
             t
         }
         "Cast" => {
-            let to = graph::attr_i(n, "to", 0) as i32;
+            let to = onnx::attr_i(n, "to", 0) as i32;
             match to {
-                dt::FLOAT => graph::f32_tensor(&out, &first.dims, &graph::read_f32(first)?),
+                dt::FLOAT => onnx::f32_tensor(&out, &first.dims, &onnx::read_f32(first)?),
                 dt::INT64 if matches!(first.data_type, dt::INT32 | dt::INT64 | dt::INT8 | dt::UINT8) => {
-                    graph::i64_tensor(&out, &first.dims, &graph::read_i64(first)?)
+                    onnx::i64_tensor(&out, &first.dims, &onnx::read_i64(first)?)
                 }
                 _ => return Ok(None),
             }
@@ -235,10 +235,10 @@ fn eval_const(n: &pb::NodeProto, inputs: &[Option<&pb::TensorProto>]) -> Result<
             if !matches!(first.data_type, dt::INT8 | dt::UINT8 | dt::INT32) {
                 return Ok(None);
             }
-            let x = graph::read_i64(first)?;
-            let s = graph::read_f32(scale)?;
+            let x = onnx::read_i64(first)?;
+            let s = onnx::read_f32(scale)?;
             let z = match zp {
-                Some(z) => graph::read_i64(z)?,
+                Some(z) => onnx::read_i64(z)?,
                 None => vec![0; s.len()],
             };
             if s.is_empty() || z.len() != s.len() {
@@ -249,7 +249,7 @@ fn eval_const(n: &pb::NodeProto, inputs: &[Option<&pb::TensorProto>]) -> Result<
                 x.iter().map(|&v| (v - z[0]) as f32 * s[0]).collect()
             } else {
                 let rank = first.dims.len() as i64;
-                let axis = graph::attr_i(n, "axis", 1);
+                let axis = onnx::attr_i(n, "axis", 1);
                 let axis = if axis < 0 { axis + rank } else { axis } as usize;
                 if axis >= first.dims.len() || first.dims[axis] as usize != s.len() {
                     return Err(Error::Graph {
@@ -271,14 +271,14 @@ fn eval_const(n: &pb::NodeProto, inputs: &[Option<&pb::TensorProto>]) -> Result<
                     })
                     .collect()
             };
-            graph::f32_tensor(&out, &first.dims, &y)
+            onnx::f32_tensor(&out, &first.dims, &y)
         }
         "Reshape" | "Unsqueeze" | "Squeeze" => {
             let dims = match n.op_type.as_str() {
                 "Reshape" => {
                     let Some(Some(shape)) = inputs.get(1) else { return Ok(None) };
-                    let mut target = graph::read_i64(shape)?;
-                    let total = graph::numel(first) as i64;
+                    let mut target = onnx::read_i64(shape)?;
+                    let total = onnx::numel(first) as i64;
                     for (i, d) in target.iter_mut().enumerate() {
                         if *d == 0 {
                             *d = *first.dims.get(i).unwrap_or(&1);
@@ -295,8 +295,8 @@ fn eval_const(n: &pb::NodeProto, inputs: &[Option<&pb::TensorProto>]) -> Result<
                 }
                 _ => {
                     let axes = match inputs.get(1) {
-                        Some(Some(a)) => graph::read_i64(a)?,
-                        _ => graph::attr_ints(n, "axes").unwrap_or_default(),
+                        Some(Some(a)) => onnx::read_i64(a)?,
+                        _ => onnx::attr_ints(n, "axes").unwrap_or_default(),
                     };
                     let mut dims = first.dims.clone();
                     if n.op_type == "Unsqueeze" {
@@ -319,7 +319,7 @@ fn eval_const(n: &pb::NodeProto, inputs: &[Option<&pb::TensorProto>]) -> Result<
                     }
                 }
             };
-            if dims.iter().product::<i64>() != graph::numel(first) as i64 {
+            if dims.iter().product::<i64>() != onnx::numel(first) as i64 {
                 return Ok(None);
             }
             let mut t = first.clone();
@@ -340,7 +340,7 @@ fn fold_constants(g: &mut pb::GraphProto) -> Result<Vec<String>> {
         let n = &g.node[i];
         if n.op_type == "Constant" {
             if let (Some(out), Some(t)) =
-                (n.output.first(), graph::attr(n, "value").and_then(|a| a.t.as_ref()))
+                (n.output.first(), onnx::attr(n, "value").and_then(|a| a.t.as_ref()))
             {
                 let mut t = t.clone();
                 t.name = out.clone();
@@ -355,7 +355,7 @@ fn fold_constants(g: &mut pb::GraphProto) -> Result<Vec<String>> {
         i += 1;
     }
     loop {
-        let consts = graph::constants(g);
+        let consts = onnx::constants(g);
         let mut folded = None;
         for (i, n) in g.node.iter().enumerate() {
             if n.input.is_empty() || n.output.len() != 1 || is_graph_io(g, &n.output[0]) {
@@ -387,16 +387,16 @@ fn fold_batchnorm(g: &mut pb::GraphProto) -> Result<Vec<String>> {
     let mut changes = vec![];
     let mut names = Names::of(g);
     loop {
-        let consts = graph::constants(g);
-        let uses = graph::use_counts(g);
-        let prods = graph::producers(g);
+        let consts = onnx::constants(g);
+        let uses = onnx::use_counts(g);
+        let prods = onnx::producers(g);
         let mut plan = None;
         for (bi, bn) in g.node.iter().enumerate() {
             if bn.op_type != "BatchNormalization" || bn.input.len() < 5 {
                 continue;
             }
             // Inference form only: one output, training_mode unset or 0.
-            if bn.output.iter().skip(1).any(|o| !o.is_empty()) || graph::attr_i(bn, "training_mode", 0) != 0 {
+            if bn.output.iter().skip(1).any(|o| !o.is_empty()) || onnx::attr_i(bn, "training_mode", 0) != 0 {
                 continue;
             }
             let x = &bn.input[0];
@@ -426,13 +426,9 @@ fn fold_batchnorm(g: &mut pb::GraphProto) -> Result<Vec<String>> {
             }
         }
         let Some((bi, li, p, w, bias)) = plan else { break };
-        let eps = graph::attr_f(&g.node[bi], "epsilon", 1e-5);
-        let (gamma, beta, mean, var) = (
-            graph::read_f32(&p[0])?,
-            graph::read_f32(&p[1])?,
-            graph::read_f32(&p[2])?,
-            graph::read_f32(&p[3])?,
-        );
+        let eps = onnx::attr_f(&g.node[bi], "epsilon", 1e-5);
+        let (gamma, beta, mean, var) =
+            (onnx::read_f32(&p[0])?, onnx::read_f32(&p[1])?, onnx::read_f32(&p[2])?, onnx::read_f32(&p[3])?);
         let c = gamma.len();
         if [beta.len(), mean.len(), var.len()].iter().any(|&l| l != c) {
             break;
@@ -442,16 +438,16 @@ fn fold_batchnorm(g: &mut pb::GraphProto) -> Result<Vec<String>> {
             (0..c).map(|i| f64::from(gamma[i]) / (f64::from(var[i]) + f64::from(eps)).sqrt()).collect();
         let shift: Vec<f64> = (0..c).map(|i| f64::from(beta[i]) - f64::from(mean[i]) * scale[i]).collect();
         let layer = g.node[li].clone();
-        let mut wv = graph::read_f32(&w)?;
+        let mut wv = onnx::read_f32(&w)?;
         let dims = w.dims.clone();
         let op = layer.op_type.as_str();
-        let group = graph::attr_i(&layer, "group", 1).max(1) as usize;
+        let group = onnx::attr_i(&layer, "group", 1).max(1) as usize;
         // The output channel of each weight element.
         let ok = match op {
             "Conv" => dims.first().map(|&d| d as usize) == Some(c),
             "ConvTranspose" => dims.get(1).map(|&d| d as usize * group) == Some(c),
             "Gemm" => {
-                let trans_b = graph::attr_i(&layer, "transB", 0) == 1;
+                let trans_b = onnx::attr_i(&layer, "transB", 0) == 1;
                 dims.len() == 2 && dims[if trans_b { 0 } else { 1 }] as usize == c
             }
             _ => dims.len() == 2 && dims[1] as usize == c, // MatMul with B [K, F]
@@ -470,7 +466,7 @@ fn fold_batchnorm(g: &mut pb::GraphProto) -> Result<Vec<String>> {
                     let cin_per_group = dims[0] as usize / group;
                     (cin / cin_per_group) * dims[1] as usize + j
                 }
-                "Gemm" if graph::attr_i(&layer, "transB", 0) == 1 => idx / dims[1] as usize,
+                "Gemm" if onnx::attr_i(&layer, "transB", 0) == 1 => idx / dims[1] as usize,
                 _ => idx % dims[1] as usize,
             }
         };
@@ -478,7 +474,7 @@ fn fold_batchnorm(g: &mut pb::GraphProto) -> Result<Vec<String>> {
             *v = (f64::from(*v) * scale[channel_of(idx)]) as f32;
         }
         let (alpha_beta_ok, gemm_beta) = if op == "Gemm" {
-            let b = graph::attr_f(&layer, "beta", 1.0);
+            let b = onnx::attr_f(&layer, "beta", 1.0);
             (b != 0.0 || bias.is_none(), b)
         } else {
             (true, 1.0)
@@ -487,7 +483,7 @@ fn fold_batchnorm(g: &mut pb::GraphProto) -> Result<Vec<String>> {
             break;
         }
         let old_b: Vec<f32> = match &bias {
-            Some(b) => graph::read_f32(b)?,
+            Some(b) => onnx::read_f32(b)?,
             None => vec![0.0; c],
         };
         if old_b.len() != c {
@@ -500,8 +496,8 @@ fn fold_batchnorm(g: &mut pb::GraphProto) -> Result<Vec<String>> {
         let base = if layer.name.is_empty() { layer.output[0].clone() } else { layer.name.clone() };
         let wname = names.fresh(&format!("{base}.weight_bn"));
         let bname = names.fresh(&format!("{base}.bias_bn"));
-        g.initializer.push(graph::f32_tensor(&wname, &dims, &wv));
-        g.initializer.push(graph::f32_tensor(&bname, &[c as i64], &new_b));
+        g.initializer.push(onnx::f32_tensor(&wname, &dims, &wv));
+        g.initializer.push(onnx::f32_tensor(&bname, &[c as i64], &new_b));
         let bn = g.node[bi].clone();
         let bn_out = bn.output[0].clone();
         let layer_out = layer.output[0].clone();
@@ -527,7 +523,7 @@ fn fold_batchnorm(g: &mut pb::GraphProto) -> Result<Vec<String>> {
             }
             if op == "Gemm" && bias.is_none() {
                 n.attribute.retain(|a| a.name != "beta");
-                n.attribute.push(graph::float_attr("beta", 1.0));
+                n.attribute.push(onnx::float_attr("beta", 1.0));
             }
             // The layer now writes what the BN wrote.
             n.output[0] = bn_out.clone();

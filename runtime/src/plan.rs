@@ -41,12 +41,13 @@ pub(crate) fn cast_inputs(plan: &Runnable, inputs: TVec<TValue>) -> Result<TVec<
     for (i, v) in inputs.into_iter().enumerate() {
         let want = model
             .input_fact(i)
-            .map_err(|e| Error::tract(format!("read the type of input {i}"), e))?
+            .map_err(|e| Error::tract_run(format!("read the type of input {i}"), e))?
             .datum_type;
         if v.datum_type() == want || !want.is_float() || !v.datum_type().is_float() {
             out.push(v);
         } else {
-            let t = v.cast_to_dt(want).map_err(|e| Error::tract(format!("cast input {i} to {want:?}"), e))?;
+            let t =
+                v.cast_to_dt(want).map_err(|e| Error::tract_run(format!("cast input {i} to {want:?}"), e))?;
             out.push(t.into_owned().into_tvalue());
         }
     }

@@ -15,7 +15,7 @@
 
 use crate::error::{Error, Result};
 use crate::latent::{Latents, SampleOptions};
-use crate::model::{guard, Model};
+use crate::model::{guard_run, Model};
 use crate::plan::{input_values, probe_plan, ProbedValue};
 use crate::signature::Batch;
 use std::collections::HashMap;
@@ -234,7 +234,7 @@ pub fn activations(model: &Model, options: &ProbeOptions) -> Result<ActivationRe
             peak.insert(name.clone(), (op.clone(), 0.0));
         }
     }
-    let labels = crate::generate::cycle_labels(sig, options.count);
+    let labels = sig.cycle_labels(options.count);
     let mut non_finite = vec![];
     for &scale in &options.scales {
         let latents = scale_latents(sig.latent.dim, options.seed, options.count, scale)?;
@@ -254,11 +254,11 @@ pub fn activations(model: &Model, options: &ProbeOptions) -> Result<ActivationRe
             }
             let inputs = input_values(model, &z, l.as_deref(), batch)?;
             let plan = plan.clone();
-            let outs = guard("run the activation probe", move || plan.run(inputs))?;
+            let outs = guard_run("run the activation probe", move || plan.run(inputs))?;
             for (ix, t) in outs.iter().enumerate() {
-                let t = t.cast_to::<f32>().map_err(|e| Error::tract("read a probed value", e))?;
-                let view = t.try_as_plain_ram().map_err(|e| Error::tract("read a probed value", e))?;
-                let v = view.as_slice::<f32>().map_err(|e| Error::tract("read a probed value", e))?;
+                let t = t.cast_to::<f32>().map_err(|e| Error::tract_run("read a probed value", e))?;
+                let view = t.try_as_plain_ram().map_err(|e| Error::tract_run("read a probed value", e))?;
+                let v = view.as_slice::<f32>().map_err(|e| Error::tract_run("read a probed value", e))?;
                 // Only the first n images of a padded chunk count.
                 let used = if batch > 0 && v.len() % batch == 0 { v.len() / batch * n } else { v.len() };
                 let v = &v[..used];

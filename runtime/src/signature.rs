@@ -216,6 +216,15 @@ pub struct Signature {
     pub batch: Batch,
 }
 
+impl Signature {
+    /// Labels `0, 1, ..., classes - 1, 0, 1, ...` for `count` images of a conditional model
+    /// (`None` for an unconditional one): how genloom fills the labels of a request that gives
+    /// none, so that a batch shows every class.
+    pub fn cycle_labels(&self, count: usize) -> Option<Vec<i64>> {
+        self.label.as_ref().map(|l| (0..count).map(|i| (i % l.classes.max(1)) as i64).collect())
+    }
+}
+
 /// Choices for models whose signature cannot be discovered unaided.
 #[derive(Debug, Clone, Default, PartialEq)]
 #[non_exhaustive]
@@ -317,7 +326,7 @@ fn label_like(name: &str) -> bool {
 fn all_names(inputs: &[InputDesc]) -> String {
     inputs
         .iter()
-        .map(|i| format!("`{}` {} {}", i.name, crate::model::dtype_name(i.elem), shape_text(i)))
+        .map(|i| format!("`{}` {} {}", i.name, crate::onnx::dtype_name(i.elem), shape_text(i)))
         .collect::<Vec<_>>()
         .join(", ")
 }
@@ -359,7 +368,7 @@ pub(crate) fn discover_inputs(graph: &pb::GraphProto, ov: &SignatureOverrides) -
                         format!(
                             "; input `{}` has the shape of a latent but is {}, expected float32",
                             i.name,
-                            crate::model::dtype_name(i.elem)
+                            crate::onnx::dtype_name(i.elem)
                         )
                     })
                     .unwrap_or_default();
@@ -396,7 +405,7 @@ pub(crate) fn discover_inputs(graph: &pb::GraphProto, ov: &SignatureOverrides) -
             reason: format!(
                 "latent input `{}` is {}, expected float32",
                 latent_desc.name,
-                crate::model::dtype_name(latent_desc.elem)
+                crate::onnx::dtype_name(latent_desc.elem)
             ),
         });
     }
@@ -536,14 +545,14 @@ fn label_input(graph: &pb::GraphProto, d: &InputDesc, ov: &SignatureOverrides) -
             reason: format!(
                 "label input `{}` is {}, expected int64 class indices or float32 one-hot rows",
                 d.name,
-                crate::model::dtype_name(d.elem)
+                crate::onnx::dtype_name(d.elem)
             ),
         })
     }
 }
 
 fn classes_from_graph(graph: &pb::GraphProto, label: &str) -> Option<usize> {
-    let consts = crate::graph::constants(graph);
+    let consts = crate::onnx::constants(graph);
     for n in &graph.node {
         match n.op_type.as_str() {
             "Gather" if n.input.get(1).map(String::as_str) == Some(label) => {
@@ -555,7 +564,7 @@ fn classes_from_graph(graph: &pb::GraphProto, label: &str) -> Option<usize> {
             "OneHot" if n.input.first().map(String::as_str) == Some(label) => {
                 return consts
                     .get(n.input.get(1)?.as_str())
-                    .and_then(|t| crate::graph::scalar(t))
+                    .and_then(|t| crate::onnx::scalar(t))
                     .map(|v| v as usize);
             }
             "Cast" | "Identity" if n.input.first().map(String::as_str) == Some(label) => {
@@ -647,7 +656,7 @@ const LAYOUT_OPS: &[&str] = &[
 ];
 
 fn producer_chain_has_nhwc_transpose(graph: &pb::GraphProto, output: &str) -> bool {
-    let prod = crate::graph::producers(graph);
+    let prod = crate::onnx::producers(graph);
     let mut cur = output;
     for _ in 0..16 {
         let Some(n) = prod.get(cur).map(|&i| &graph.node[i]) else { return false };
@@ -670,8 +679,8 @@ fn producer_chain_has_nhwc_transpose(graph: &pb::GraphProto, output: &str) -> bo
 /// Walks back from the output through layout ops and scalar affine maps to a bounding op.
 /// Returns the range and a description, or the name of the op that stopped the walk.
 fn discover_range(graph: &pb::GraphProto, output: &str) -> std::result::Result<(ValueRange, String), String> {
-    let prod = crate::graph::producers(graph);
-    let consts = crate::graph::constants(graph);
+    let prod = crate::onnx::producers(graph);
+    let consts = crate::onnx::constants(graph);
     // y = scale * x + offset, accumulated from the output backwards.
     let mut scale = 1.0f64;
     let mut offset = 0.0f64;
@@ -691,7 +700,7 @@ fn discover_range(graph: &pb::GraphProto, output: &str) -> std::result::Result<(
                         .get(i)
                         .filter(|s| !s.is_empty())
                         .and_then(|s| consts.get(s.as_str()))
-                        .and_then(|t| crate::graph::scalar(t))
+                        .and_then(|t| crate::onnx::scalar(t))
                 };
                 match (get(1), get(2)) {
                     (Some(lo), Some(hi)) if lo < hi => Some((lo, hi)),
@@ -715,8 +724,8 @@ fn discover_range(graph: &pb::GraphProto, output: &str) -> std::result::Result<(
             continue;
         }
         if matches!(op, "Mul" | "Add" | "Sub" | "Div") && n.input.len() == 2 {
-            let c0 = consts.get(n.input[0].as_str()).and_then(|t| crate::graph::scalar(t));
-            let c1 = consts.get(n.input[1].as_str()).and_then(|t| crate::graph::scalar(t));
+            let c0 = consts.get(n.input[0].as_str()).and_then(|t| crate::onnx::scalar(t));
+            let c1 = consts.get(n.input[1].as_str()).and_then(|t| crate::onnx::scalar(t));
             let (k, var, const_first) = match (c0, c1) {
                 (None, Some(k)) => (k, &n.input[0], false),
                 (Some(k), None) => (k, &n.input[1], true),
@@ -760,9 +769,9 @@ mod tests {
     #[test]
     fn half_decoding() {
         // IEEE 754 binary16: 0x3c00 = 1.0, 0xc000 = -2.0, 0x7bff = 65504 (largest finite).
-        assert_eq!(crate::graph::f16_to_f32(0x3c00), 1.0);
-        assert_eq!(crate::graph::f16_to_f32(0xc000), -2.0);
-        assert_eq!(crate::graph::f16_to_f32(0x7bff), 65504.0);
-        assert_eq!(crate::graph::f16_to_f32(0x0001), 2f32.powi(-24));
+        assert_eq!(crate::onnx::f16_to_f32(0x3c00), 1.0);
+        assert_eq!(crate::onnx::f16_to_f32(0xc000), -2.0);
+        assert_eq!(crate::onnx::f16_to_f32(0x7bff), 65504.0);
+        assert_eq!(crate::onnx::f16_to_f32(0x0001), 2f32.powi(-24));
     }
 }

@@ -146,7 +146,7 @@ fn an_operator_tract_does_not_know_is_named() {
     });
     let e = load_bytes(&b);
     assert!(matches!(e, Error::UnsupportedOperator { .. }), "{e:?}");
-    assert_eq!(e.group(), "load");
+    assert_eq!(e.kind(), genloom::ErrorKind::Load);
     assert_eq!(
         e.to_string(),
         "node `finish` is the ONNX operator `Frobnicate`, which this build of genloom does not carry"

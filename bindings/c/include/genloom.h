@@ -85,7 +85,9 @@ typedef enum {
      */
     GENLOOM_STATUS_BUFFER_TOO_SMALL = 3,
     /**
-     * The model could not be loaded: not ONNX, malformed, or refused by tract.
+     * The model could not be loaded or prepared: not ONNX, malformed, or refused by tract
+     * (which builds a plan per micro-batch size on first use, so a generation call can return
+     * it too).
      */
     GENLOOM_STATUS_LOAD_FAILED = 4,
     /**

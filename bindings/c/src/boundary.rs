@@ -1,7 +1,7 @@
 //! The one boundary every export runs in: panics caught, pointers checked, errors mapped to a
 //! status and the thread-local message.
 
-use crate::status::{genloom_status, status_of, Stage};
+use crate::status::{genloom_status, status_of};
 use std::cell::RefCell;
 use std::ffi::CString;
 use std::panic::{catch_unwind, AssertUnwindSafe};
@@ -26,17 +26,12 @@ impl Failure {
     pub(crate) fn invalid(message: impl Into<String>) -> Failure {
         Failure::new(genloom_status::InvalidArgument, message)
     }
-
-    /// A runtime error seen while opening a model.
-    pub(crate) fn open(error: genloom::Error) -> Failure {
-        Failure::new(status_of(&error, Stage::Open), error.to_string())
-    }
 }
 
-/// A runtime error seen after opening (sampling, generating, encoding).
+/// A runtime error: its kind gives the status; the message keeps every cause (tract's chain).
 impl From<genloom::Error> for Failure {
     fn from(error: genloom::Error) -> Failure {
-        Failure::new(status_of(&error, Stage::Run), error.to_string())
+        Failure::new(status_of(&error), error.chain())
     }
 }
 

@@ -81,7 +81,7 @@ unsafe fn open(
     options: GeneratorOptions,
     out: Out<*mut genloom_generator>,
 ) -> Outcome {
-    let inner = Generator::new(model?, options).map_err(Failure::open)?;
+    let inner = Generator::new(model?, options).map_err(Failure::from)?;
     let handle = Box::into_raw(Box::new(genloom_generator { inner }));
     // SAFETY: `out` was checked in `Out::new` and is writable by this function's contract.
     unsafe { out.write(handle) };
@@ -116,7 +116,7 @@ pub unsafe extern "C" fn genloom_generator_open_path(
         // SAFETY: NULL or a live handle by this function's contract.
         let options = unsafe { options_or_default(options) }?;
         let path = path_from_bytes(bytes)?;
-        let model = Model::from_path(path, &LoadOptions::default()).map_err(Failure::open);
+        let model = Model::from_path(path, &LoadOptions::default()).map_err(Failure::from);
         // SAFETY: `generator` is writable by this function's contract.
         unsafe { open(model, options, out) }
     })
@@ -159,7 +159,7 @@ pub unsafe extern "C" fn genloom_generator_open_bytes(
         let out = Out::new(generator, "generator")?;
         // SAFETY: NULL or a live handle by this function's contract.
         let options = unsafe { options_or_default(options) }?;
-        let model = Model::from_bytes(bytes, &LoadOptions::default()).map_err(Failure::open);
+        let model = Model::from_bytes(bytes, &LoadOptions::default()).map_err(Failure::from);
         // SAFETY: `generator` is writable by this function's contract.
         unsafe { open(model, options, out) }
     })

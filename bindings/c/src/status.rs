@@ -1,6 +1,6 @@
 //! Status codes and the mapping from the runtime's errors to them.
 
-use genloom::Error;
+use genloom::{Error, ErrorKind};
 
 /// What a call did. `GENLOOM_STATUS_OK` is 0; every other value is a failure whose detail is in
 /// `genloom_last_error_message()`.
@@ -21,7 +21,9 @@ pub enum genloom_status {
     InvalidArgument = 2,
     /// An output buffer was too small; the size it needs was written to `*needed`.
     BufferTooSmall = 3,
-    /// The model could not be loaded: not ONNX, malformed, or refused by tract.
+    /// The model could not be loaded or prepared: not ONNX, malformed, or refused by tract
+    /// (which builds a plan per micro-batch size on first use, so a generation call can return
+    /// it too).
     LoadFailed = 4,
     /// The model loaded but does not look like a supported generator (no latent input found,
     /// unknown value range, ...).
@@ -86,30 +88,16 @@ impl genloom_status {
     }
 }
 
-/// Where a runtime error happened: tract's errors mean a failed load while opening and a
-/// failed inference afterwards.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub(crate) enum Stage {
-    Open,
-    Run,
-}
-
-/// The status for a runtime error.
-pub(crate) fn status_of(error: &Error, stage: Stage) -> genloom_status {
-    if matches!(error, Error::Cancelled { .. }) {
-        return genloom_status::Cancelled;
-    }
-    match error.group() {
-        "load" => genloom_status::LoadFailed,
-        "tract" => match stage {
-            Stage::Open => genloom_status::LoadFailed,
-            Stage::Run => genloom_status::InferenceFailed,
-        },
-        "signature" => genloom_status::Signature,
-        "argument" | "npy" => genloom_status::InvalidArgument,
-        "inference" => genloom_status::InferenceFailed,
-        "limits" => genloom_status::Limit,
-        "io" => genloom_status::Io,
+/// The status for a runtime error: one arm per kind.
+pub(crate) fn status_of(error: &Error) -> genloom_status {
+    match error.kind() {
+        ErrorKind::Load => genloom_status::LoadFailed,
+        ErrorKind::Signature => genloom_status::Signature,
+        ErrorKind::InvalidArgument | ErrorKind::Npy => genloom_status::InvalidArgument,
+        ErrorKind::Inference => genloom_status::InferenceFailed,
+        ErrorKind::Cancelled => genloom_status::Cancelled,
+        ErrorKind::Limit => genloom_status::Limit,
+        ErrorKind::Io => genloom_status::Io,
         _ => genloom_status::Internal,
     }
 }

@@ -121,7 +121,7 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
         let peak_load = alloc.peak_usage().saturating_sub(before);
         let steady = alloc.current_usage().saturating_sub(before);
         let sig = model.signature().clone();
-        let labels_of = |n: usize| genloom::generate::cycle_labels(&sig, n);
+        let labels_of = |n: usize| sig.cycle_labels(n);
         // Batch-1 latency.
         let one = g1.sample_latents(&SampleOptions::new(3, 1))?;
         let l1 = labels_of(1);

@@ -32,15 +32,15 @@ impl<E: Into<anyhow::Error>> From<E> for Failure {
     }
 }
 
-/// Bad input or an impossible request: 2. Work that failed: 1.
+/// Bad input or an impossible request: 2. Work that failed: 1. One arm per error kind; a file
+/// that cannot be read is bad input, one that cannot be written is failed work.
 pub fn exit_code(e: &genloom::Error) -> i32 {
-    match e {
-        genloom::Error::Io { action, .. } if action == "read" || action == "open the folder" => EXIT_USAGE,
-        genloom::Error::Io { .. }
-        | genloom::Error::Image { .. }
-        | genloom::Error::Output { .. }
-        | genloom::Error::Cancelled { .. } => EXIT_FAILED,
-        genloom::Error::Tract { action, .. } if action.starts_with("run") => EXIT_FAILED,
+    use genloom::ErrorKind as K;
+    match e.kind() {
+        K::Io if matches!(e, genloom::Error::Io { action, .. } if action == "read" || action == "open the folder") => {
+            EXIT_USAGE
+        }
+        K::Io | K::Inference | K::Cancelled => EXIT_FAILED,
         _ => EXIT_USAGE,
     }
 }

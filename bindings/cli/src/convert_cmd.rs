@@ -47,8 +47,7 @@ fn per_image_ms(model: &Model) -> CliResult<f64> {
     o.micro_batch = 8;
     let g = Generator::new(model.clone(), o)?;
     let l = g.sample_latents(&SampleOptions::new(1, 64))?;
-    let labels: Option<Vec<i64>> =
-        g.signature().label.as_ref().map(|k| (0..64).map(|i| (i % k.classes) as i64).collect());
+    let labels = g.signature().cycle_labels(64);
     g.generate(&l, labels.as_deref())?;
     let t = Instant::now();
     for _ in 0..3 {

@@ -196,19 +196,3 @@ impl Fields {
         Ok(if v.is_undefined() || v.is_null() { None } else { Some(v) })
     }
 }
-
-/// The runtime's message for an error, with the deeper causes that the message does not already
-/// hold (tract's context chain, for example).
-pub fn message(e: &Error) -> String {
-    let mut msg = e.to_string();
-    let mut cause = std::error::Error::source(e);
-    while let Some(c) = cause {
-        let text = c.to_string();
-        if !msg.contains(&text) {
-            msg.push_str(": ");
-            msg.push_str(&text);
-        }
-        cause = c.source();
-    }
-    msg
-}

@@ -32,7 +32,7 @@ use wasm_bindgen::Clamped;
 pub const MAX_COUNT: u64 = 65_536;
 
 fn err(e: genloom::Error) -> JsError {
-    JsError::new(&js::message(&e))
+    JsError::new(&e.chain())
 }
 
 #[cfg(target_arch = "wasm32")]

@@ -519,10 +519,10 @@ impl<'a> Ctx<'a> {
         let dim = sig.latent.dim;
         let big = generator(model, o.max_batch)?;
         let batch_latents = Latents::sample(dim, &SampleOptions::new(o.seed, o.max_batch))?;
-        let batch_labels = crate::generate::cycle_labels(&sig, o.max_batch);
+        let batch_labels = sig.cycle_labels(o.max_batch);
         let whole = big.generate(&batch_latents, batch_labels.as_deref())?;
         let typical = Latents::sample(dim, &SampleOptions::new(o.seed.wrapping_add(1), o.samples))?;
-        let typical_labels = crate::generate::cycle_labels(&sig, o.samples);
+        let typical_labels = sig.cycle_labels(o.samples);
         let typical_out = big.generate(&typical, typical_labels.as_deref())?;
         let width = f64::from(sig.image.range.hi - sig.image.range.lo);
         Ok(Ctx {

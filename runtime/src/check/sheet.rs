@@ -2,7 +2,6 @@
 
 use super::generator;
 use crate::error::Result;
-use crate::generate::cycle_labels;
 use crate::latent::{Latents, SampleOptions};
 use crate::model::Model;
 
@@ -20,13 +19,13 @@ pub fn sheet(model: &Model, seed: u64) -> Result<crate::pixels::Pixels> {
         let mut o = SampleOptions::new(seed, 8);
         o.truncation = t;
         let l = Latents::sample(dim, &o)?;
-        let imgs = g.generate(&l, cycle_labels(g.signature(), 8).as_deref())?;
+        let imgs = g.generate(&l, g.signature().cycle_labels(8).as_deref())?;
         tiles.extend(crate::pixels::all_pixels(&imgs, format)?.0);
     }
     let keys = Latents::sample(dim, &SampleOptions::new(seed.wrapping_add(100), 2))?;
     let po = crate::latent::PathOptions { steps: 7, ..Default::default() };
     let path = crate::latent::path(&keys, &po)?;
-    let imgs = g.generate(&path, cycle_labels(g.signature(), path.count()).as_deref())?;
+    let imgs = g.generate(&path, g.signature().cycle_labels(path.count()).as_deref())?;
     tiles.extend(crate::pixels::all_pixels(&imgs, format)?.0);
     let go = crate::pixels::GridOptions {
         columns: Some(8),

@@ -54,7 +54,7 @@ fn node_label(n: &pb::NodeProto) -> String {
 
 /// String attributes whose values the ONNX specification enumerates, for ops generators use.
 fn attribute_problem(n: &pb::NodeProto) -> Option<String> {
-    let s = |name: &str| crate::graph::attr(n, name).map(|a| String::from_utf8_lossy(&a.s).into_owned());
+    let s = |name: &str| crate::onnx::attr(n, name).map(|a| String::from_utf8_lossy(&a.s).into_owned());
     let allowed: &[(&str, &[&str])] = match n.op_type.as_str() {
         "Resize" | "Upsample" => &[
             ("mode", &["nearest", "linear", "cubic"]),
@@ -162,13 +162,13 @@ pub(super) fn prescan(proto: &pb::ModelProto, r: &mut Recorder) -> bool {
 
 pub(super) fn training_mode(proto: &pb::ModelProto, r: &mut Recorder) {
     let Some(g) = proto.graph.as_ref() else { return };
-    let consts = crate::graph::constants(g);
+    let consts = crate::onnx::constants(g);
     let mut found = vec![];
     let mut unsure = vec![];
     for n in &g.node {
         match n.op_type.as_str() {
             "BatchNormalization" => {
-                if crate::graph::attr_i(n, "training_mode", 0) != 0 {
+                if crate::onnx::attr_i(n, "training_mode", 0) != 0 {
                     found.push(format!(
                         "{} has training_mode = 1 (statistics of the batch, not the learned ones)",
                         node_label(n)
@@ -182,7 +182,7 @@ pub(super) fn training_mode(proto: &pb::ModelProto, r: &mut Recorder) {
             }
             "Dropout" => {
                 if let Some(t) = n.input.get(2).filter(|s| !s.is_empty()) {
-                    match consts.get(t.as_str()).and_then(|c| crate::graph::read_i64(c).ok()) {
+                    match consts.get(t.as_str()).and_then(|c| crate::onnx::read_i64(c).ok()) {
                         Some(v) if v.first().copied().unwrap_or(0) != 0 => found.push(format!(
                             "{} has training_mode = true (drops values at random)",
                             node_label(n)

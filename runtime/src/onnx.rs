@@ -1,5 +1,7 @@
-//! Small helpers over the ONNX protobuf graph: reading and writing tensor values, attributes,
-//! producers and consumers, and fresh names. Used by the load-time passes and by `convert`.
+//! Helpers over the ONNX protobuf, at the bottom of the runtime's modules (they import only
+//! `error`): data types and element counts, reading and writing tensor values, attributes,
+//! producers and consumers, tensor visitors, and fresh names. Used by loading, signature
+//! discovery, the load-time passes, `convert` and the gate.
 
 use crate::error::{Error, Result};
 use std::collections::{HashMap, HashSet};
@@ -49,12 +51,7 @@ pub(crate) fn read_f32(t: &pb::TensorProto) -> Result<Vec<f32>> {
             .map(|b| f64::from_le_bytes(b.try_into().unwrap_or([0; 8])) as f32)
             .collect(),
         dt::DOUBLE => t.double_data.iter().map(|&v| v as f32).collect(),
-        other => {
-            return Err(bad(
-                t,
-                &format!("expected a float tensor, found {}", crate::model::dtype_name(other)),
-            ))
-        }
+        other => return Err(bad(t, &format!("expected a float tensor, found {}", dtype_name(other)))),
     };
     if v.len() != n {
         return Err(bad(t, &format!("holds {} values for shape {:?}", v.len(), t.dims)));
@@ -79,12 +76,7 @@ pub(crate) fn read_i64(t: &pb::TensorProto) -> Result<Vec<i64>> {
         dt::BOOL => t.int32_data.iter().map(|&v| i64::from(v != 0)).collect(),
         dt::UINT8 if !r.is_empty() => r.iter().map(|&b| i64::from(b)).collect(),
         dt::INT32 | dt::INT8 | dt::UINT8 => t.int32_data.iter().map(|&v| i64::from(v)).collect(),
-        other => {
-            return Err(bad(
-                t,
-                &format!("expected an integer tensor, found {}", crate::model::dtype_name(other)),
-            ))
-        }
+        other => return Err(bad(t, &format!("expected an integer tensor, found {}", dtype_name(other)))),
     };
     if v.len() != n {
         return Err(bad(t, &format!("holds {} values for shape {:?}", v.len(), t.dims)));
@@ -266,4 +258,64 @@ pub(crate) fn prune_constants(g: &mut pb::GraphProto) -> usize {
     // Old exporters also list initializers as graph inputs; drop the listing with the tensor.
     g.input.retain(|i| !removed.contains(&i.name));
     count
+}
+
+/// Bytes per element of an ONNX tensor data type (`None` for strings and unknown types).
+pub(crate) fn elem_size(data_type: i32) -> Option<usize> {
+    use pb::tensor_proto::DataType as D;
+    Some(match D::try_from(data_type).ok()? {
+        D::Float | D::Int32 | D::Uint32 => 4,
+        D::Uint8 | D::Int8 | D::Bool => 1,
+        D::Uint16 | D::Int16 | D::Float16 | D::Bfloat16 => 2,
+        D::Int64 | D::Double | D::Uint64 | D::Complex64 => 8,
+        D::Complex128 => 16,
+        _ => return None,
+    })
+}
+
+/// The ONNX name of a tensor data type, lower case (`float`, `int64`, ...).
+pub(crate) fn dtype_name(data_type: i32) -> String {
+    pb::tensor_proto::DataType::try_from(data_type)
+        .map(|d| d.as_str_name().to_ascii_lowercase())
+        .unwrap_or_else(|_| format!("type {data_type}"))
+}
+
+/// Elements in a tensor from its dims, refusing negative dims and overflow.
+pub(crate) fn element_count(t: &pb::TensorProto) -> Result<u64> {
+    let mut n: u64 = 1;
+    for &d in &t.dims {
+        if d < 0 {
+            return Err(Error::Graph {
+                reason: format!("tensor `{}` has a negative dimension {d} in {:?}", t.name, t.dims),
+            });
+        }
+        n = n.checked_mul(d as u64).ok_or_else(|| Error::Limit {
+            limit: format!("the element count of tensor `{}`", t.name),
+            actual: u64::MAX,
+            max: u64::MAX,
+            setting: "Limits::max_parameters".into(),
+        })?;
+    }
+    Ok(n)
+}
+
+/// Every tensor stored in the graph: initializers and Constant nodes' `value` attributes.
+pub(crate) fn for_each_tensor_mut(
+    graph: &mut pb::GraphProto,
+    f: &mut dyn FnMut(&mut pb::TensorProto) -> Result<()>,
+) -> Result<()> {
+    for t in &mut graph.initializer {
+        f(t)?;
+    }
+    for n in &mut graph.node {
+        for a in &mut n.attribute {
+            if let Some(t) = a.t.as_mut() {
+                f(t)?;
+            }
+            if let Some(g) = a.g.as_mut() {
+                for_each_tensor_mut(g, f)?;
+            }
+        }
+    }
+    Ok(())
 }
