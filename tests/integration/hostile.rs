@@ -85,7 +85,10 @@ fn eight_threads_share_one_generator() {
 /// or in images, never in a panic.
 #[test]
 fn fuzz_find_convtranspose_padding_overflow_is_an_error() {
-    let bytes = std::fs::read(golden("fuzz/model_bytes-convtranspose-padding-overflow.onnx")).unwrap();
+    let bytes = std::fs::read(
+        genloom_tests::root().join("fuzz/corpus/model_bytes/regress-convtranspose-padding-overflow"),
+    )
+    .unwrap();
     let mut options = LoadOptions::default();
     options.limits.max_model_bytes = 4 << 20;
     options.limits.max_output_pixels = 256 * 256;
