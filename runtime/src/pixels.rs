@@ -240,14 +240,101 @@ impl Pixels {
         Ok(out)
     }
 
+    /// PNG bytes of the picture with its provenance in text chunks (see [`Provenance`]).
+    ///
+    /// # Errors
+    /// As [`Pixels::to_png`].
+    pub fn to_png_with(&self, provenance: Option<&Provenance>) -> Result<Vec<u8>> {
+        let png = self.to_png()?;
+        Ok(match provenance {
+            Some(p) => insert_text_chunks(png, &p.entries()),
+            None => png,
+        })
+    }
+
     /// Writes a PNG file atomically.
     ///
     /// # Errors
     /// As [`Pixels::to_png`], and [`Error::Io`].
     pub fn write_png(&self, path: &Path) -> Result<()> {
-        let bytes = self.to_png()?;
+        self.write_png_with(path, None)
+    }
+
+    /// Writes a PNG file atomically, with its provenance when given.
+    ///
+    /// # Errors
+    /// As [`Pixels::to_png`], and [`Error::Io`].
+    pub fn write_png_with(&self, path: &Path, provenance: Option<&Provenance>) -> Result<()> {
+        let bytes = self.to_png_with(provenance)?;
         crate::files::write_atomic(path, &bytes)
     }
+}
+
+/// Where a generated picture came from, written into its PNG as international text chunks
+/// (`iTXt`, PNG specification 11.3.4.5, UTF-8) so that the file says it is synthetic wherever it
+/// goes. The keywords are `Software` and `Source` (predefined by the PNG specification, 11.3.4.2)
+/// and `genloom:synthetic`, `genloom:model-sha256`, `genloom:origin` (ours).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Provenance {
+    /// The model, as the user named it (a file name, or the built-in model's name).
+    pub model: String,
+    /// SHA-256 of the model file, hex.
+    pub model_sha256: String,
+    /// What the picture was drawn from: `"seed 7, index 3"`, `"seed 7, indices 0 to 15"`,
+    /// `"latents from z.npy, rows 0 to 3"`, or the source picture for image-to-image models.
+    pub origin: String,
+}
+
+impl Provenance {
+    /// The text entries, keyword and text.
+    pub fn entries(&self) -> Vec<(&'static str, String)> {
+        vec![
+            ("Software", format!("genloom {}", crate::VERSION)),
+            (
+                "Source",
+                format!(
+                    "synthetic image drawn by the generator model {} (sha256 {})",
+                    self.model, self.model_sha256
+                ),
+            ),
+            ("genloom:synthetic", "true".into()),
+            ("genloom:model-sha256", self.model_sha256.clone()),
+            ("genloom:origin", self.origin.clone()),
+        ]
+    }
+}
+
+/// CRC-32 as the PNG specification defines it (Annex D: polynomial 0xedb88320, reflected, initial
+/// and final XOR 0xffffffff).
+fn png_crc(bytes: &[u8]) -> u32 {
+    let mut crc = 0xffff_ffffu32;
+    for &b in bytes {
+        crc ^= u32::from(b);
+        for _ in 0..8 {
+            crc = if crc & 1 != 0 { 0xedb8_8320 ^ (crc >> 1) } else { crc >> 1 };
+        }
+    }
+    crc ^ 0xffff_ffff
+}
+
+/// `png` with one uncompressed `iTXt` chunk per entry inserted before its `IEND` chunk (the last
+/// 12 bytes of a PNG the encoder wrote).
+fn insert_text_chunks(mut png: Vec<u8>, entries: &[(&str, String)]) -> Vec<u8> {
+    let iend = png.split_off(png.len().saturating_sub(12));
+    for (keyword, text) in entries {
+        // Keyword: 1 to 79 bytes; then compression flag 0, method 0, empty language tag and
+        // translated keyword, then UTF-8 text (11.3.4.5).
+        let mut data: Vec<u8> = keyword.bytes().take(79).collect();
+        data.extend_from_slice(&[0, 0, 0, 0, 0]);
+        data.extend_from_slice(text.as_bytes());
+        let mut typed = b"iTXt".to_vec();
+        typed.extend_from_slice(&data);
+        png.extend_from_slice(&(data.len() as u32).to_be_bytes());
+        png.extend_from_slice(&typed);
+        png.extend_from_slice(&png_crc(&typed).to_be_bytes());
+    }
+    png.extend_from_slice(&iend);
+    png
 }
 
 /// How to lay tiles out on a contact sheet.
@@ -418,5 +505,29 @@ mod tests {
         assert_eq!(at(4, 1), 20);
         assert_eq!(at(1, 4), 30);
         assert_eq!(at(4, 4), 32);
+    }
+
+    #[test]
+    fn png_crc_matches_the_specification() {
+        // The CRC of an IEND chunk's type, as every PNG ends with it: ae 42 60 82.
+        assert_eq!(png_crc(b"IEND"), 0xae42_6082);
+        // The CRC-32 check value of the ASCII digits "123456789" (the usual test vector).
+        assert_eq!(png_crc(b"123456789"), 0xcbf4_3926);
+    }
+
+    #[test]
+    fn provenance_chunks_sit_before_iend() {
+        let p = Pixels { width: 1, height: 1, format: PixelFormat::Gray8, data: vec![7] };
+        let plain = p.to_png().unwrap();
+        let prov = Provenance {
+            model: "m.onnx".into(),
+            model_sha256: "ab".into(),
+            origin: "seed 1, index 0".into(),
+        };
+        let tagged = p.to_png_with(Some(&prov)).unwrap();
+        assert_eq!(&tagged[..plain.len() - 12], &plain[..plain.len() - 12]);
+        assert_eq!(&tagged[tagged.len() - 12..], &plain[plain.len() - 12..]);
+        let text = String::from_utf8_lossy(&tagged);
+        assert!(text.contains("iTXtgenloom:synthetic") && text.contains("seed 1, index 0"), "{text}");
     }
 }

@@ -99,6 +99,24 @@ class VerifyTest(unittest.TestCase):
         broken.write_bytes(bytes(data))
         self.assertEqual(run("png", broken, ok)[0], 1)
 
+    # ---- png text
+    def test_png_text(self):
+        from PIL import PngImagePlugin
+        im = Image.new("RGB", (2, 2))
+        info = PngImagePlugin.PngInfo()
+        info.add_itxt("genloom:synthetic", "true")
+        f = self.tmp / "t.png"
+        im.save(f, pnginfo=info)
+        self.assertEqual(run("png-text", f, self.expect({"text": {"genloom:synthetic": "true"}}, "t.json"))[0], 0)
+        code, msg = run("png-text", f, self.expect({"text": {"genloom:synthetic": "false"}}, "t2.json"))
+        self.assertEqual(code, 1)
+        self.assertIn("differs", msg)
+        self.assertEqual(run("png-text", f, self.expect({"text": {}}, "t3.json"))[0], 1)
+        plain = self.tmp / "p.png"
+        im.save(plain)
+        self.assertEqual(run("png-text", plain, self.expect({"text": {}}, "t4.json"))[0], 0)
+        self.assertEqual(run("png-text", plain, self.expect({"text": {"x": "y"}}, "t5.json"))[0], 1)
+
     # ---- gif
     def test_gif(self):
         frames = [Image.new("RGB", (4, 3), (80 * c, 0, 0)) for c in (0, 1, 2)]

@@ -229,12 +229,43 @@ def check_gif(path, exp):
     return "gif ok: %d frames %dx%d loop %s" % (n, width, height, loop)
 
 
-CHECKS = {"npy": check_npy, "png": check_png, "gif": check_gif}
+# --------------------------------------------------------------------------
+# png text chunks (provenance)
+# --------------------------------------------------------------------------
+
+def check_png_text(path, exp):
+    """EXPECT: {"text": {keyword: value, ...}} (every pair present, as Pillow reads tEXt, zTXt and
+    iTXt chunks), or {"text": {}} for a PNG that must carry no text at all."""
+    from PIL import Image
+
+    want = _need(exp, "text", dict)
+    try:
+        with Image.open(path) as im:
+            fmt = im.format
+            im.verify()  # every chunk CRC, through IEND
+        with Image.open(path) as im:
+            im.load()
+            got = dict(im.text)
+    except Exception as e:  # noqa: BLE001
+        raise Differs("Pillow cannot read the file: %s: %s" % (type(e).__name__, e))
+    if fmt != "PNG":
+        raise Differs("format differs: actual %s, expected PNG" % fmt)
+    if not want and got:
+        raise Differs("expected no text chunks, found %s" % sorted(got))
+    for k, v in want.items():
+        if k not in got:
+            raise Differs("text keyword %r missing (found %s)" % (k, sorted(got)))
+        if got[k] != v:
+            raise Differs("text %r differs: actual %r, expected %r" % (k, got[k], v))
+    return "png text ok: %d keywords" % len(got)
+
+
+CHECKS = {"npy": check_npy, "png": check_png, "gif": check_gif, "png-text": check_png_text}
 
 
 def main(argv):
     if len(argv) != 3 or argv[0] not in CHECKS:
-        print("usage error: expected KIND FILE EXPECT.json with KIND in npy|png|gif\n" + USAGE,
+        print("usage error: expected KIND FILE EXPECT.json with KIND in npy|png|gif|png-text\n" + USAGE,
               file=sys.stderr)
         return 2
     kind, path, exp_path = argv

@@ -146,7 +146,12 @@ pub fn run(a: &CheckArgs) -> CliResult {
         match m {
             Ok(m) if report.get(CheckId::Finiteness).is_some_and(|c| c.status == Status::Pass) => {
                 ensure_parent(p)?;
-                check::sheet(&m, a.seed)?.write_png(p)?;
+                let provenance = genloom::pixels::Provenance {
+                    model: report.model.clone(),
+                    model_sha256: report.model_sha256.clone(),
+                    origin: format!("the gate's contact sheet, seed {}", a.seed),
+                };
+                check::sheet(&m, a.seed)?.write_png_with(p, Some(&provenance))?;
             }
             _ => eprintln!("note: no contact sheet written (the finiteness check did not pass)"),
         }

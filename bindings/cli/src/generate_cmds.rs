@@ -5,7 +5,7 @@ use crate::common::{
 };
 use anyhow::Context;
 use clap::Args;
-use genloom::pixels::{self, GifOptions, GridOptions, PixelFormat, PixelStats, Pixels};
+use genloom::pixels::{self, GifOptions, GridOptions, PixelFormat, PixelStats, Pixels, Provenance};
 use genloom::{Generator, Images, Interpolation, Latents, PathOptions, Prior, RngMode, SampleOptions};
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
@@ -78,6 +78,9 @@ pub struct SampleArgs {
     pub margin: usize,
     #[command(flatten)]
     pub run: RunArgs,
+    /// Leave the provenance text (model, its sha256, seed and index, "synthetic") out of the PNGs.
+    #[arg(long)]
+    pub no_provenance: bool,
     /// Print a JSON report instead of text.
     #[arg(long)]
     pub json: bool,
@@ -144,11 +147,30 @@ fn labels_for(
     }
 }
 
+/// What the PNGs say about their origin: the model, its sha256, and (per picture, or for the
+/// whole grid when `None`) where the picture came from.
+struct Origin<'a> {
+    model: String,
+    sha256: String,
+    describe: &'a dyn Fn(Option<usize>) -> String,
+}
+
+impl Origin<'_> {
+    fn of(&self, index: Option<usize>) -> Provenance {
+        Provenance {
+            model: self.model.clone(),
+            model_sha256: self.sha256.clone(),
+            origin: (self.describe)(index),
+        }
+    }
+}
+
 fn write_outputs(
     out_path: &Path,
     tiles: &[Pixels],
     grid: &GridOptions,
     prefix: &str,
+    origin: Option<&Origin<'_>>,
 ) -> CliResult<Vec<String>> {
     let mut files = vec![];
     if is_folder_target(out_path) {
@@ -156,7 +178,7 @@ fn write_outputs(
             .with_context(|| format!("cannot create folder {}", out_path.display()))?;
         for (i, t) in tiles.iter().enumerate() {
             let p = out_path.join(format!("{prefix}-{i:04}.png"));
-            t.upscale(grid.scale).write_png(&p)?;
+            t.upscale(grid.scale).write_png_with(&p, origin.map(|o| o.of(Some(i))).as_ref())?;
             files.push(p.display().to_string());
         }
     } else {
@@ -170,7 +192,7 @@ fn write_outputs(
             }
         }
         ensure_parent(out_path)?;
-        pixels::grid(tiles, grid)?.write_png(out_path)?;
+        pixels::grid(tiles, grid)?.write_png_with(out_path, origin.map(|o| o.of(None)).as_ref())?;
         files.push(out_path.display().to_string());
     }
     Ok(files)
@@ -187,6 +209,7 @@ pub fn sample(a: &SampleArgs) -> CliResult {
         return Err(usage("--truncation and --psi apply to drawn latents, not to --latents-in"));
     }
     let count = latents.count();
+    let sha256 = model.info().sha256.clone();
     let (g, plan_ms) = a.run.generator(model)?;
     let labels = labels_for(&g, a.label.as_deref(), a.labels_in.as_deref(), count)?;
     let (images, generate_ms) = run_with_bar(&g, &latents, labels.as_deref(), a.json)?;
@@ -196,7 +219,16 @@ pub fn sample(a: &SampleArgs) -> CliResult {
     grid.columns = a.columns;
     grid.scale = a.scale;
     grid.margin = a.margin;
-    let files = write_outputs(&a.out, &tiles, &grid, "sample")?;
+    let mode = if a.latent.numpy { " (NumPy-compatible)" } else { "" };
+    let label_of = |i: usize| labels.as_ref().map(|l| format!(", label {}", l[i])).unwrap_or_default();
+    let describe = |index: Option<usize>| match (index, &a.latents_in) {
+        (Some(i), Some(f)) => format!("latents from {}, row {i}{}", f.display(), label_of(i)),
+        (Some(i), None) => format!("seed {}, index {i}{mode}{}", a.seed, label_of(i)),
+        (None, Some(f)) => format!("latents from {}, rows 0 to {} in reading order", f.display(), count - 1),
+        (None, None) => format!("seed {}, indices 0 to {} in reading order{mode}", a.seed, count - 1),
+    };
+    let origin = Origin { model: a.model.display_name(), sha256, describe: &describe };
+    let files = write_outputs(&a.out, &tiles, &grid, "sample", (!a.no_provenance).then_some(&origin))?;
     if let Some(p) = &a.latents_out {
         ensure_parent(p)?;
         genloom::npy::write_latents(p, &latents)?;
@@ -286,6 +318,9 @@ pub struct MorphArgs {
     pub latents_out: Option<PathBuf>,
     #[command(flatten)]
     pub run: RunArgs,
+    /// Leave the provenance text (model, its sha256, keyframes, "synthetic") out of a .png strip.
+    #[arg(long)]
+    pub no_provenance: bool,
     /// Print a JSON report instead of text.
     #[arg(long)]
     pub json: bool,
@@ -335,6 +370,7 @@ pub fn morph(a: &MorphArgs) -> CliResult {
     po.interpolation = interpolation;
     po.looped = a.looped;
     let frames = genloom::latent::path(&keys, &po)?;
+    let sha256 = model.info().sha256.clone();
     let (g, _) = a.run.generator(model)?;
     let labels = match (&g.signature().label, a.label) {
         (None, None) => None,
@@ -356,7 +392,17 @@ pub fn morph(a: &MorphArgs) -> CliResult {
         let mut o = GridOptions::default();
         o.columns = Some(a.columns.unwrap_or(tiles.len()));
         o.scale = a.scale;
-        pixels::grid(&tiles, &o)?.write_png(&a.out)?;
+        let keyframes = match (&seeds, &a.keyframes) {
+            (Some(s), _) => format!("seeds {s:?}"),
+            (None, Some(f)) => format!("keyframes from {}", f.display()),
+            (None, None) => String::new(),
+        };
+        let provenance = Provenance {
+            model: a.model.display_name(),
+            model_sha256: sha256,
+            origin: format!("{} frames of a {} path through {keyframes}", frames.count(), a.interp),
+        };
+        pixels::grid(&tiles, &o)?.write_png_with(&a.out, (!a.no_provenance).then_some(&provenance))?;
     }
     if let Some(p) = &a.latents_out {
         ensure_parent(p)?;

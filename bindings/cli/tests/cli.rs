@@ -87,10 +87,11 @@ fn sample_folder_latents_round_trip_and_json() {
     assert!(o.status.success(), "{}", text(&o.stderr));
     let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     assert_eq!(v["files"].as_array().unwrap().len(), 3);
-    let first = std::fs::read(d.path().join("each/sample-0000.png")).unwrap();
+    let first = image::open(d.path().join("each/sample-0000.png")).unwrap().to_rgb8();
     let o = genloom(&["sample", "--latents-in", "z.npy", "--out", "again"], d.path());
     assert!(o.status.success(), "{}", text(&o.stderr));
-    assert_eq!(std::fs::read(d.path().join("again/sample-0000.png")).unwrap(), first);
+    // The same pixels (the provenance text differs: seed and index, or the NPY file and row).
+    assert_eq!(image::open(d.path().join("again/sample-0000.png")).unwrap().to_rgb8(), first);
 }
 
 #[test]
@@ -413,4 +414,47 @@ fn f16_compute_draws_nearly_the_same_tiles() {
     let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     let psnr = v["rows"][0]["psnr_vs_first_db"].as_f64().expect("a PSNR for f16 compute");
     assert!(psnr > 45.0 && psnr.is_finite(), "f16 compute PSNR {psnr}");
+}
+
+/// Pillow (tests/py/verify.py `png-text`) reads the PNG's text chunks back: every chunk's CRC
+/// checks out (PNG specification, Annex D) and the provenance keywords hold what was asked.
+fn pillow_text(file: &Path, expect: serde_json::Value) {
+    let dir = tempfile::tempdir().unwrap();
+    let exp = dir.path().join("expect.json");
+    std::fs::write(&exp, serde_json::to_vec(&serde_json::json!({ "text": expect })).unwrap()).unwrap();
+    let python = std::env::var("GENLOOM_PYTHON").unwrap_or_else(|_| "python3".into());
+    let script = Path::new(env!("CARGO_MANIFEST_DIR")).join("../../tests/py/verify.py");
+    let o = Command::new(python).arg(script).arg("png-text").arg(file).arg(&exp).output().unwrap();
+    assert!(o.status.success(), "{}{}", text(&o.stdout), text(&o.stderr));
+}
+
+#[test]
+fn pngs_carry_their_provenance_unless_asked_not_to() {
+    let d = tempfile::tempdir().unwrap();
+    let model = demo("tiles.onnx");
+    let sum = Command::new("sha256sum").arg(&model).output().unwrap();
+    let digest = text(&sum.stdout).split_whitespace().next().unwrap().to_string();
+    let o = genloom(&["sample", &model, "--count", "3", "--seed", "9", "--out", "one/"], d.path());
+    assert!(o.status.success(), "{}", text(&o.stderr));
+    pillow_text(
+        &d.path().join("one/sample-0002.png"),
+        serde_json::json!({
+            "genloom:synthetic": "true",
+            "genloom:model-sha256": digest,
+            "genloom:origin": "seed 9, index 2",
+            "Software": format!("genloom {}", env!("CARGO_PKG_VERSION")),
+        }),
+    );
+    let o = genloom(&["sample", &model, "--count", "4", "--seed", "9", "--out", "grid.png"], d.path());
+    assert!(o.status.success(), "{}", text(&o.stderr));
+    pillow_text(
+        &d.path().join("grid.png"),
+        serde_json::json!({"genloom:origin": "seed 9, indices 0 to 3 in reading order"}),
+    );
+    let o = genloom(&["sample", &model, "--count", "4", "--out", "plain.png", "--no-provenance"], d.path());
+    assert!(o.status.success(), "{}", text(&o.stderr));
+    pillow_text(&d.path().join("plain.png"), serde_json::json!({}));
+    let o = genloom(&["morph", &model, "--seeds", "1,2", "--steps", "3", "--out", "strip.png"], d.path());
+    assert!(o.status.success(), "{}", text(&o.stderr));
+    pillow_text(&d.path().join("strip.png"), serde_json::json!({"genloom:synthetic": "true"}));
 }
