@@ -25,6 +25,7 @@ static int failed(genloom_status status, const char *what) {
 int main(int argc, char **argv) {
     const char *model = argc > 1 ? argv[1] : "models-demo/tiles.onnx";
     genloom_generator *g = NULL;
+    genloom_sample_options *sample = NULL;
     float *latents = NULL;
     unsigned char *pixels = NULL, *png = NULL;
     size_t dim, width, height, latents_len, pixels_len, png_cap = 0, written;
@@ -46,10 +47,10 @@ int main(int argc, char **argv) {
     pixels = malloc(pixels_len);
     if (latents == NULL || pixels == NULL) goto done;
 
-    if (failed(genloom_generator_sample_latents(g, SEED, 0, COUNT, GENLOOM_PRIOR_GAUSSIAN,
-                                                0.0f /* no truncation */, -1.0f /* no psi */,
-                                                false /* portable RNG */, latents, latents_len,
-                                                &written),
+    /* Gaussian prior, no truncation, no psi, the portable RNG: the defaults; only the seed is set. */
+    if (failed(genloom_sample_options_new(&sample), "make sample options") ||
+        failed(genloom_sample_options_set_seed(sample, SEED), "set the seed") ||
+        failed(genloom_generator_sample(g, sample, COUNT, latents, latents_len, &written),
                "sample latents"))
         goto done;
     if (failed(genloom_generator_generate_rgba8(g, latents, latents_len, NULL, 0, NULL, NULL,
@@ -88,6 +89,7 @@ done:
     free(png);
     free(pixels);
     free(latents);
+    genloom_sample_options_free(sample);
     genloom_generator_free(g);
     return rc;
 }

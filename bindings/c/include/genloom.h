@@ -152,6 +152,18 @@ typedef struct genloom_generator genloom_generator;
 typedef struct genloom_options genloom_options;
 
 /**
+ * How latents are drawn (an opaque handle): seed, first index, prior, truncation, psi and the
+ * random-number stream. Create it with `genloom_sample_options_new` (seed 0, first index 0,
+ * Gaussian prior, no truncation, no psi, the portable stream), change it with the
+ * `genloom_sample_options_set_*` and `_clear_*` calls, pass it to `genloom_generator_sample`
+ * (which only reads it), free it with `genloom_sample_options_free`.
+ *
+ * Not thread-safe to change: a setter must not run while another thread uses the same options.
+ * Sampling from several threads with the same (unchanging) options is fine.
+ */
+typedef struct genloom_sample_options genloom_sample_options;
+
+/**
  * The memory order of float images: one of the `GENLOOM_LAYOUT_*` values.
  */
 typedef uint32_t genloom_layout;
@@ -413,6 +425,10 @@ genloom_status genloom_generator_get_output_len(const genloom_generator *generat
                                                 size_t *out_len);
 
 /**
+ * Deprecated: use `genloom_sample_options` with `genloom_generator_sample`, which has no sentinel
+ * values (here `psi` 0 silently collapses every latent to the centre, and `truncation <= 0` and
+ * `psi < 0` mean "none"). Kept, with the same behaviour, for one more release.
+ *
  * Draws `count` latent vectors (rows `first_index .. first_index + count` of `seed`'s stream)
  * into `latents`, row after row: `count * latent_dim` floats.
  *
@@ -504,11 +520,13 @@ genloom_status genloom_generator_generate_rgba8(const genloom_generator *generat
                                                 size_t *needed);
 
 /**
- * Writes `steps` frames from latent `a` to latent `b`, both included: frame `j` is at
- * `t = j / (steps - 1)`, so the first frame is `a` and the last is `b`. `frames` receives
- * `steps * a_len` floats, frame after frame.
+ * Writes `frame_count` frames from latent `a` to latent `b`, both included: frame `j` is at
+ * `t = j / (frame_count - 1)`, so the first frame is `a` and the last is `b`. `frames` receives
+ * `frame_count * a_len` floats, frame after frame. (This is a frame count, ends included; the
+ * `steps` of `genloom_latent_interpolate_path` are the steps of one segment, so
+ * `frame_count = steps + 1` draws the same frames as a two-keyframe open path.)
  *
- * `a_len` and `b_len` must be equal and non-zero, `steps` at least 2. A short buffer gives
+ * `a_len` and `b_len` must be equal and non-zero, `frame_count` at least 2. A short buffer gives
  * `GENLOOM_STATUS_BUFFER_TOO_SMALL` with the size in `*needed`.
  *
  * # Safety
@@ -521,14 +539,14 @@ genloom_status genloom_latent_interpolate(const float *a,
                                           const float *b,
                                           size_t b_len,
                                           genloom_interpolation interpolation,
-                                          size_t steps,
+                                          size_t frame_count,
                                           float *frames,
                                           size_t frames_len,
                                           size_t *needed);
 
 /**
  * Writes the frames of a path through `K = keyframes_len / dim` keyframe latents, `steps`
- * frames per segment: an open path has `(K - 1) * steps + 1` frames and ends on the last
+ * steps per segment (as `genloom morph --steps` and the runtime's `PathOptions::steps`): an open path has `(K - 1) * steps + 1` frames and ends on the last
  * keyframe; a looped path (`looped` true) has `K * steps` frames and its last segment leads back
  * toward the first keyframe. Within a segment frame `j` is at `t = j / steps`. `frames` receives
  * `frame count * dim` floats.
@@ -636,6 +654,121 @@ genloom_status genloom_pixels_encode_png(const uint8_t *rgba,
                                          uint8_t *png,
                                          size_t png_len,
                                          size_t *needed);
+
+/**
+ * Creates sample options with the defaults.
+ *
+ * # Safety
+ * `options` is NULL (giving `GENLOOM_STATUS_NULL_ARGUMENT`) or valid for a write of one pointer.
+ */
+genloom_status genloom_sample_options_new(genloom_sample_options **options);
+
+/**
+ * Frees sample options made by `genloom_sample_options_new`. NULL is accepted and does nothing.
+ *
+ * # Safety
+ * `options` is NULL or a handle from `genloom_sample_options_new` not yet freed; it must not be
+ * used after this call.
+ */
+void genloom_sample_options_free(genloom_sample_options *options);
+
+/**
+ * Sets the seed (default 0). With `numpy_compatible`, seeds must be below 2^32, which the draw
+ * checks.
+ *
+ * # Safety
+ * `options` is NULL or a live handle, not used by another thread during the call.
+ */
+genloom_status genloom_sample_options_set_seed(genloom_sample_options *options,
+                                               uint64_t seed);
+
+/**
+ * Sets the first row of the seed's stream to draw (default 0): row `i` is the same latent
+ * whatever the count.
+ *
+ * # Safety
+ * `options` is NULL or a live handle, not used by another thread during the call.
+ */
+genloom_status genloom_sample_options_set_first_index(genloom_sample_options *options,
+                                                      uint64_t first_index);
+
+/**
+ * Sets the prior: `GENLOOM_PRIOR_GAUSSIAN` (default) or `GENLOOM_PRIOR_UNIFORM` (truncation must
+ * be cleared first).
+ *
+ * # Safety
+ * `options` is NULL or a live handle, not used by another thread during the call.
+ */
+genloom_status genloom_sample_options_set_prior(genloom_sample_options *options,
+                                                genloom_prior prior);
+
+/**
+ * Resamples Gaussian components beyond `±threshold` (the truncation trick; at least 0.05, common
+ * practice 0.5 to 2). A bad value gives `GENLOOM_STATUS_INVALID_ARGUMENT` and leaves the options
+ * unchanged.
+ *
+ * # Safety
+ * `options` is NULL or a live handle, not used by another thread during the call.
+ */
+genloom_status genloom_sample_options_set_truncation(genloom_sample_options *options,
+                                                     float threshold);
+
+/**
+ * Turns truncation off (the default).
+ *
+ * # Safety
+ * `options` is NULL or a live handle, not used by another thread during the call.
+ */
+genloom_status genloom_sample_options_clear_truncation(genloom_sample_options *options);
+
+/**
+ * Shrinks each latent toward zero, `z * psi`, with `psi` in [0, 1] (0 collapses every latent to
+ * the centre; 1 changes nothing).
+ *
+ * # Safety
+ * `options` is NULL or a live handle, not used by another thread during the call.
+ */
+genloom_status genloom_sample_options_set_psi(genloom_sample_options *options,
+                                              float psi);
+
+/**
+ * Turns psi off (the default).
+ *
+ * # Safety
+ * `options` is NULL or a live handle, not used by another thread during the call.
+ */
+genloom_status genloom_sample_options_clear_psi(genloom_sample_options *options);
+
+/**
+ * `false` (default): the portable counter-based stream, identical in Rust, C and JS. `true`:
+ * reproduce `numpy.random.RandomState(seed).standard_normal((count, dim)).astype(numpy.float32)`
+ * (or `.uniform(-1, 1, ...)`) bit for bit.
+ *
+ * # Safety
+ * `options` is NULL or a live handle, not used by another thread during the call.
+ */
+genloom_status genloom_sample_options_set_numpy_compatible(genloom_sample_options *options,
+                                                           bool numpy_compatible);
+
+/**
+ * Draws `count` latent vectors as `options` say (rows `first_index .. first_index + count` of
+ * the seed's stream) into `latents`, row after row: `count * latent_dim` floats. `options` may be
+ * NULL for the defaults.
+ *
+ * A `latents_len` below the size needed gives `GENLOOM_STATUS_BUFFER_TOO_SMALL` with the size in
+ * `*needed` and draws nothing. On success `*needed` (if not NULL) receives the floats written.
+ *
+ * # Safety
+ * `generator` is NULL or a live handle; `options` is NULL or a live handle not changed during
+ * the call; `latents` is valid for writes of `latents_len` floats (or NULL with `latents_len`
+ * 0); `needed` is NULL or valid for a write of one `size_t`.
+ */
+genloom_status genloom_generator_sample(const genloom_generator *generator,
+                                        const genloom_sample_options *options,
+                                        size_t count,
+                                        float *latents,
+                                        size_t latents_len,
+                                        size_t *needed);
 
 #ifdef __cplusplus
 }  // extern "C"

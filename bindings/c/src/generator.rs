@@ -4,9 +4,7 @@ use crate::boundary::{arg_ref, arg_slice, boundary, guard, Failure, Out, OutBuf,
 use crate::options::genloom_options;
 use crate::status::genloom_status;
 use genloom::pixels::{to_pixels, PixelFormat};
-use genloom::{
-    Generator, GeneratorOptions, Images, Latents, LoadOptions, Model, Prior, RngMode, SampleOptions,
-};
+use genloom::{Generator, GeneratorOptions, Images, Latents, LoadOptions, Model, RngMode, SampleOptions};
 use std::ffi::{c_char, c_int, c_void, CStr};
 
 /// A loaded model with its optimised inference plans (an opaque handle), made by
@@ -359,6 +357,10 @@ pub unsafe extern "C" fn genloom_generator_get_output_len(
     })
 }
 
+/// Deprecated: use `genloom_sample_options` with `genloom_generator_sample`, which has no sentinel
+/// values (here `psi` 0 silently collapses every latent to the centre, and `truncation <= 0` and
+/// `psi < 0` mean "none"). Kept, with the same behaviour, for one more release.
+///
 /// Draws `count` latent vectors (rows `first_index .. first_index + count` of `seed`'s stream)
 /// into `latents`, row after row: `count * latent_dim` floats.
 ///
@@ -398,26 +400,28 @@ pub unsafe extern "C" fn genloom_generator_sample_latents(
         let out = OutBuf::new(latents, latents_len, needed, "latents", "floats")?;
         let mut options = SampleOptions::new(seed, count);
         options.first_index = first_index;
-        options.prior = match prior {
-            GENLOOM_PRIOR_GAUSSIAN => Prior::Gaussian,
-            GENLOOM_PRIOR_UNIFORM => Prior::Uniform,
-            other => {
-                return Err(Failure::invalid(format!(
-                    "`prior` is {other}, expected GENLOOM_PRIOR_GAUSSIAN (0) or GENLOOM_PRIOR_UNIFORM (1)"
-                )))
-            }
-        };
+        options.prior = crate::sample::prior_of(prior)?;
         // NaN is neither <= 0 nor < 0: it is passed on and refused by the runtime with its message.
         options.truncation = if truncation <= 0.0 { None } else { Some(truncation) };
         options.psi = if psi < 0.0 { None } else { Some(psi) };
         options.mode = if numpy_compatible { RngMode::NumpyCompatible } else { RngMode::Portable };
-        let n = output_len(&generator.inner, count, GENLOOM_OUTPUT_LATENTS)?;
-        // SAFETY: `needed` is NULL or writable by this function's contract.
-        unsafe { out.reserve(n) }?;
-        let drawn = generator.inner.sample_latents(&options)?;
-        // SAFETY: the buffer and `needed` are writable by this function's contract; `drawn` is ours.
-        unsafe { out.fill(drawn.as_slice()) }
+        // SAFETY: the buffer and `needed` are writable by this function's contract.
+        unsafe { draw_latents(&generator.inner, &options, out) }
     })
+}
+
+/// Draws the latents `options` describe into `out`.
+///
+/// # Safety
+/// `out`'s buffer and `needed` pointer are writable for their lengths (the sampling calls'
+/// contracts).
+pub(crate) unsafe fn draw_latents(g: &Generator, options: &SampleOptions, out: OutBuf<f32>) -> Outcome {
+    let n = output_len(g, options.count, GENLOOM_OUTPUT_LATENTS)?;
+    // SAFETY: as this function's contract.
+    unsafe { out.reserve(n) }?;
+    let drawn = g.sample_latents(options)?;
+    // SAFETY: as this function's contract; `drawn` is ours.
+    unsafe { out.fill(drawn.as_slice()) }
 }
 
 /// The latents and labels of a generate call, checked, and the run itself.

@@ -30,11 +30,13 @@ fn path_options(steps: usize, interpolation: Interpolation, looped: bool) -> Pat
     options
 }
 
-/// Writes `steps` frames from latent `a` to latent `b`, both included: frame `j` is at
-/// `t = j / (steps - 1)`, so the first frame is `a` and the last is `b`. `frames` receives
-/// `steps * a_len` floats, frame after frame.
+/// Writes `frame_count` frames from latent `a` to latent `b`, both included: frame `j` is at
+/// `t = j / (frame_count - 1)`, so the first frame is `a` and the last is `b`. `frames` receives
+/// `frame_count * a_len` floats, frame after frame. (This is a frame count, ends included; the
+/// `steps` of `genloom_latent_interpolate_path` are the steps of one segment, so
+/// `frame_count = steps + 1` draws the same frames as a two-keyframe open path.)
 ///
-/// `a_len` and `b_len` must be equal and non-zero, `steps` at least 2. A short buffer gives
+/// `a_len` and `b_len` must be equal and non-zero, `frame_count` at least 2. A short buffer gives
 /// `GENLOOM_STATUS_BUFFER_TOO_SMALL` with the size in `*needed`.
 ///
 /// # Safety
@@ -49,7 +51,7 @@ pub unsafe extern "C" fn genloom_latent_interpolate(
     b: *const f32,
     b_len: usize,
     interpolation: genloom_interpolation,
-    steps: usize,
+    frame_count: usize,
     frames: *mut f32,
     frames_len: usize,
     needed: *mut usize,
@@ -68,23 +70,25 @@ pub unsafe extern "C" fn genloom_latent_interpolate(
                 b.len()
             )));
         }
-        if steps < 2 {
+        if frame_count < 2 {
             return Err(Failure::invalid(format!(
-                "`steps` is {steps}, expected at least 2 frames (the first is `a`, the last `b`)"
+                "`frame_count` is {frame_count}, expected at least 2 frames (the first is `a`, the last `b`)"
             )));
         }
-        let n = steps.checked_mul(a.len()).ok_or_else(|| Failure::invalid("`steps * a_len` overflows"))?;
+        let n = frame_count
+            .checked_mul(a.len())
+            .ok_or_else(|| Failure::invalid("`frame_count * a_len` overflows"))?;
         // SAFETY: `needed` is NULL or writable by this function's contract.
         unsafe { out.reserve(n) }?;
         let keys = Latents::new(a.len(), [a, b].concat())?;
-        let frames = path(&keys, &path_options(steps - 1, how, false))?;
+        let frames = path(&keys, &path_options(frame_count - 1, how, false))?;
         // SAFETY: the buffer and `needed` are writable by this function's contract; `frames` is ours.
         unsafe { out.fill(frames.as_slice()) }
     })
 }
 
 /// Writes the frames of a path through `K = keyframes_len / dim` keyframe latents, `steps`
-/// frames per segment: an open path has `(K - 1) * steps + 1` frames and ends on the last
+/// steps per segment (as `genloom morph --steps` and the runtime's `PathOptions::steps`): an open path has `(K - 1) * steps + 1` frames and ends on the last
 /// keyframe; a looped path (`looped` true) has `K * steps` frames and its last segment leads back
 /// toward the first keyframe. Within a segment frame `j` is at `t = j / steps`. `frames` receives
 /// `frame count * dim` floats.

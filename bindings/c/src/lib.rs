@@ -34,6 +34,7 @@ mod latent;
 mod miri_checks;
 mod options;
 mod pixels;
+mod sample;
 mod status;
 
 pub use errors::{genloom_last_error_copy, genloom_last_error_message, genloom_status_name, genloom_version};
@@ -55,4 +56,11 @@ pub use options::{
     genloom_options_set_micro_batch, genloom_options_set_threads, genloom_options_set_warm_up,
 };
 pub use pixels::genloom_pixels_encode_png;
+pub use sample::{
+    genloom_generator_sample, genloom_sample_options, genloom_sample_options_clear_psi,
+    genloom_sample_options_clear_truncation, genloom_sample_options_free, genloom_sample_options_new,
+    genloom_sample_options_set_first_index, genloom_sample_options_set_numpy_compatible,
+    genloom_sample_options_set_prior, genloom_sample_options_set_psi, genloom_sample_options_set_seed,
+    genloom_sample_options_set_truncation,
+};
 pub use status::genloom_status;

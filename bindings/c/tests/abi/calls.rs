@@ -137,9 +137,84 @@ fn sampling_matches_the_rust_api_in_every_mode() {
             bits(want.as_slice()),
             "seed {seed} first {first} prior {prior} numpy {numpy}"
         );
+        // The options handle draws the same bits, each value set by name (no sentinels).
+        let mut so = ptr::null_mut();
+        // SAFETY: `so` is a valid out-param; every setter gets the live handle; freed once below.
+        unsafe {
+            assert_eq!(genloom_sample_options_new(&mut so), genloom_status::Ok);
+            assert_eq!(genloom_sample_options_set_seed(so, seed), genloom_status::Ok);
+            assert_eq!(genloom_sample_options_set_first_index(so, first), genloom_status::Ok);
+            assert_eq!(genloom_sample_options_set_prior(so, prior), genloom_status::Ok);
+            if trunc > 0.0 {
+                assert_eq!(genloom_sample_options_set_truncation(so, trunc), genloom_status::Ok);
+            }
+            if psi >= 0.0 {
+                assert_eq!(genloom_sample_options_set_psi(so, psi), genloom_status::Ok);
+            }
+            assert_eq!(genloom_sample_options_set_numpy_compatible(so, numpy), genloom_status::Ok);
+        }
+        let mut again = vec![f32::NAN; got.len()];
+        // SAFETY: `g` and `so` are live; `again` holds its length of floats; `needed` is valid.
+        let s =
+            unsafe { genloom_generator_sample(g, so, count, again.as_mut_ptr(), again.len(), &mut needed) };
+        assert_eq!(s, genloom_status::Ok, "{}", last_error());
+        assert_eq!(bits(&again), bits(&got), "options handle, seed {seed} first {first}");
+        // SAFETY: `so` is live and freed once.
+        unsafe { genloom_sample_options_free(so) };
     }
+    // NULL options are the defaults: seed 0, first index 0, Gaussian, portable.
+    let want = rust.sample_latents(&SampleOptions::new(0, 2)).unwrap();
+    let mut got = vec![f32::NAN; want.as_slice().len()];
+    // SAFETY: `g` is live; NULL options are allowed; `got` holds its length; `needed` may be NULL.
+    let s =
+        unsafe { genloom_generator_sample(g, ptr::null(), 2, got.as_mut_ptr(), got.len(), ptr::null_mut()) };
+    assert_eq!(s, genloom_status::Ok, "{}", last_error());
+    assert_eq!(bits(&got), bits(want.as_slice()));
     // SAFETY: `g` is live and freed once.
     unsafe { genloom_generator_free(g) };
+}
+
+#[test]
+fn sample_options_refuse_bad_values_and_keep_the_last_good_ones() {
+    let mut so = ptr::null_mut();
+    // SAFETY: `so` is a valid out-param, then a live handle for every call, freed once.
+    unsafe {
+        assert_eq!(genloom_sample_options_new(&mut so), genloom_status::Ok);
+        assert_eq!(genloom_sample_options_set_psi(so, 0.5), genloom_status::Ok);
+        assert_eq!(genloom_sample_options_set_psi(so, 1.5), genloom_status::InvalidArgument);
+        assert!(last_error().contains("psi is 1.5"), "{}", last_error());
+        assert_eq!(genloom_sample_options_set_truncation(so, 0.01), genloom_status::InvalidArgument);
+        assert_eq!(genloom_sample_options_set_truncation(so, f32::NAN), genloom_status::InvalidArgument);
+        assert_eq!(genloom_sample_options_set_prior(so, 7), genloom_status::InvalidArgument);
+        assert!(last_error().contains("`prior` is 7"), "{}", last_error());
+        // Truncation with the uniform prior is refused whichever is set second.
+        assert_eq!(genloom_sample_options_set_truncation(so, 1.0), genloom_status::Ok);
+        assert_eq!(
+            genloom_sample_options_set_prior(so, GENLOOM_PRIOR_UNIFORM),
+            genloom_status::InvalidArgument
+        );
+        assert_eq!(genloom_sample_options_clear_truncation(so), genloom_status::Ok);
+        assert_eq!(genloom_sample_options_set_prior(so, GENLOOM_PRIOR_UNIFORM), genloom_status::Ok);
+        // psi 0 is a value, set on purpose: every latent is the centre.
+        assert_eq!(genloom_sample_options_set_psi(so, 0.0), genloom_status::Ok);
+        let g = open_demo(ptr::null());
+        let mut z = vec![f32::NAN; 64 * 2];
+        assert_eq!(
+            genloom_generator_sample(g, so, 2, z.as_mut_ptr(), z.len(), ptr::null_mut()),
+            genloom_status::Ok
+        );
+        assert!(z.iter().all(|&v| v == 0.0));
+        assert_eq!(genloom_sample_options_clear_psi(so), genloom_status::Ok);
+        assert_eq!(
+            genloom_generator_sample(g, so, 2, z.as_mut_ptr(), z.len(), ptr::null_mut()),
+            genloom_status::Ok
+        );
+        assert!(z.iter().any(|&v| v != 0.0));
+        assert_eq!(genloom_sample_options_set_seed(ptr::null_mut(), 1), genloom_status::NullArgument);
+        genloom_sample_options_free(so);
+        genloom_sample_options_free(ptr::null_mut());
+        genloom_generator_free(g);
+    }
 }
 
 fn bits(v: &[f32]) -> Vec<u32> {

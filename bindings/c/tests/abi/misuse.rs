@@ -507,7 +507,7 @@ fn bad_values_give_invalid_argument() {
                 &mut n,
             ),
             genloom_status::InvalidArgument,
-            "`steps` is 1",
+            "`frame_count` is 1",
         );
         expect(
             genloom_latent_interpolate_path(

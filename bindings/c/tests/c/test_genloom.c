@@ -252,6 +252,20 @@ static void check_sample(genloom_generator *g, const char *file, uint64_t seed, 
                                               z, needed, &written));
     CHECK(written == needed);
     CHECK_SAME(z, needed * sizeof(float), file);
+    /* The sample-options handle draws the same bits, each value set by name. */
+    genloom_sample_options *so = NULL;
+    CHECK_OK(genloom_sample_options_new(&so));
+    CHECK_OK(genloom_sample_options_set_seed(so, seed));
+    CHECK_OK(genloom_sample_options_set_first_index(so, first));
+    CHECK_OK(genloom_sample_options_set_prior(so, prior));
+    if (truncation > 0) CHECK_OK(genloom_sample_options_set_truncation(so, truncation));
+    if (psi >= 0) CHECK_OK(genloom_sample_options_set_psi(so, psi));
+    CHECK_OK(genloom_sample_options_set_numpy_compatible(so, numpy));
+    memset(z, 0, needed * sizeof(float));
+    CHECK_OK(genloom_generator_sample(g, so, count, z, needed, &written));
+    CHECK(written == needed);
+    CHECK_SAME(z, needed * sizeof(float), file);
+    genloom_sample_options_free(so);
     free(z);
 }
 
