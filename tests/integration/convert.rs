@@ -143,9 +143,9 @@ fn fp16_rounding_matches_numpy() {
     let vp = dir.path().join("values.npy");
     std::fs::write(&vp, genloom::npy::to_bytes_f32(&[values.len()], &values)).unwrap();
     let bp = dir.path().join("bits.npy");
-    let mut raw =
+    // int64 holds the uint16 bit patterns exactly.
+    let raw =
         genloom::npy::to_bytes_i64(&[bits.len()], &bits.iter().map(|&b| i64::from(b)).collect::<Vec<_>>());
-    raw.truncate(raw.len()); // int64 holds the uint16 values exactly
     std::fs::write(&bp, raw).unwrap();
     judge(&[OsStr::new("f16"), vp.as_os_str(), bp.as_os_str()]);
 }

@@ -118,6 +118,27 @@ fn sample_conditional_numpy_and_truncation() {
     assert!(o.status.success(), "{}", text(&o.stderr));
     let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     assert_eq!(v["labels"], serde_json::json!([0, 1, 2, 3, 0, 1, 2, 3]));
+    // The latents themselves, judged by NumPy: --numpy draws exactly what
+    // numpy.random.RandomState(seed).standard_normal((count, dim)).astype(float32) draws, and
+    // --truncation 1.0 leaves no component beyond 1.
+    for (extra, file) in [(None, "z.npy"), (Some("1.0"), "zt.npy")] {
+        let mut args =
+            vec!["sample", &m, "-n", "8", "--seed", "42", "--numpy", "--out", "n.png", "--latents-out", file];
+        if let Some(t) = extra {
+            args.extend(["--truncation", t]);
+        }
+        let o = genloom(&args, d.path());
+        assert!(o.status.success(), "{}", text(&o.stderr));
+    }
+    let python = std::env::var("GENLOOM_PYTHON").unwrap_or_else(|_| "python3".into());
+    let judge = "import numpy as np\n\
+        z = np.load('z.npy'); zt = np.load('zt.npy')\n\
+        want = np.random.RandomState(42).standard_normal((8, 64)).astype(np.float32)\n\
+        assert z.dtype == np.float32 and np.array_equal(z, want), 'numpy stream differs'\n\
+        assert zt.shape == (8, 64) and np.abs(zt).max() <= 1.0, np.abs(zt).max()\n\
+        assert not np.array_equal(zt, z)\n";
+    let o = Command::new(python).arg("-c").arg(judge).current_dir(d.path()).output().unwrap();
+    assert!(o.status.success(), "{}{}", text(&o.stdout), text(&o.stderr));
 }
 
 #[test]
