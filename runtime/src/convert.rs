@@ -86,7 +86,7 @@ pub struct ConvertOptions {
     pub per_channel: bool,
     /// Layers kept in f32 (int8 and f16).
     pub keep_float: KeepFloat,
-    /// Seed of the latents the fidelity report uses. Default 2026.
+    /// Seed of the latents the fidelity report uses. Default [`crate::DEFAULT_SEED`].
     pub eval_seed: u64,
     /// Number of latents the fidelity report uses. Default 64.
     pub eval_count: usize,
@@ -98,7 +98,7 @@ impl Default for ConvertOptions {
             precision: Precision::F16,
             per_channel: true,
             keep_float: KeepFloat::FirstAndLast,
-            eval_seed: 2026,
+            eval_seed: crate::DEFAULT_SEED,
             eval_count: 64,
         }
     }

@@ -47,5 +47,9 @@ pub use model::{Limits, LoadOptions, Model, ModelInfo};
 pub use passes::PassOptions;
 pub use signature::{Batch, LabelKind, Layout, Signature, SignatureOverrides, ValueRange};
 
+/// The seed every tool of genloom uses when none is given (sampling, the gate, a conversion's
+/// fidelity report, the bench), so that one seed means the same latents everywhere.
+pub const DEFAULT_SEED: u64 = 0;
+
 /// The version of this crate.
 pub const VERSION: &str = env!("CARGO_PKG_VERSION");

@@ -1,6 +1,6 @@
 //! `genloom bench`: what each export costs here, in milliseconds and megabytes.
 
-use crate::common::{out, out_json, usage, CliResult};
+use crate::common::{out, out_json, usage, CliResult, SignatureArgs};
 use clap::Args;
 use genloom::{Generator, GeneratorOptions, LoadOptions, Model, SampleOptions};
 use std::path::PathBuf;
@@ -11,18 +11,21 @@ use std::time::Instant;
 pub struct BenchArgs {
     /// Models to measure (default: the built-in demo model). PSNR is against the first.
     pub models: Vec<PathBuf>,
-    /// Micro-batches to try for the best per-image latency.
-    #[arg(long, default_value = "1,2,4,8,16", value_delimiter = ',')]
-    pub batch: Vec<usize>,
-    /// Thread counts for the throughput rows (default: 1 and all cores).
-    #[arg(long, value_delimiter = ',')]
+    #[command(flatten)]
+    pub signature: SignatureArgs,
+    /// Micro-batch sizes to measure (a list: each is timed; the fastest per image is reported).
+    #[arg(long, default_value = "1,2,4,8,16", value_delimiter = ',', value_name = "N,N,...")]
+    pub micro_batch: Vec<usize>,
+    /// Worker thread counts for the throughput figures (a list: each is timed; default 1 and all
+    /// cores).
+    #[arg(long, value_delimiter = ',', value_name = "N,N,...")]
     pub threads: Vec<usize>,
     /// Timed calls per latency figure.
     #[arg(long, default_value_t = 40)]
     pub iters: usize,
     /// Images per throughput run (each thread count is timed three times; the best run counts).
     #[arg(long, default_value_t = 512)]
-    pub images: usize,
+    pub count: usize,
     /// Run with the load-time passes off, to see what they are worth.
     #[arg(long)]
     pub no_passes: bool,
@@ -76,8 +79,11 @@ fn resident() -> Option<u64> {
 }
 
 pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
-    if a.iters == 0 || a.images == 0 || a.batch.is_empty() || a.batch.contains(&0) {
-        return Err(usage("--iters, --images and every --batch must be at least 1"));
+    if a.iters == 0 || a.count == 0 || a.micro_batch.is_empty() || a.micro_batch.contains(&0) {
+        return Err(usage("--iters, --count and every --micro-batch must be at least 1"));
+    }
+    if a.threads.contains(&0) {
+        return Err(usage("every --threads value must be at least 1"));
     }
     let cores = std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1);
     let threads: Vec<usize> = if a.threads.is_empty() {
@@ -89,7 +95,7 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
     } else {
         a.threads.clone()
     };
-    let mut load = LoadOptions::default();
+    let mut load = LoadOptions::with_overrides(a.signature.overrides()?);
     if a.no_passes {
         load.passes = genloom::PassOptions::none();
     }
@@ -140,7 +146,7 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
         // Best micro-batch by median per-image time.
         let mut best = (f64::INFINITY, 0.0, 1usize);
         let mut peak_gen = 0usize;
-        for &mb in &a.batch {
+        for &mb in &a.micro_batch {
             let mut o = GeneratorOptions::default();
             o.f16_compute = a.f16_compute;
             o.micro_batch = mb;
@@ -164,8 +170,8 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
             }
         }
         // Throughput per thread count at the best micro-batch.
-        let z = g1.sample_latents(&SampleOptions::new(5, a.images))?;
-        let lab = labels_of(a.images);
+        let z = g1.sample_latents(&SampleOptions::new(5, a.count))?;
+        let lab = labels_of(a.count);
         let mut throughput = vec![];
         for &th in &threads {
             let mut o = GeneratorOptions::default();
@@ -173,7 +179,7 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
             o.micro_batch = best.2;
             o.threads = th;
             let g = Generator::new(model.clone(), o)?;
-            g.generate(&z.slice(0..best.2.min(a.images))?, lab.as_ref().map(|l| &l[..best.2.min(a.images)]))?;
+            g.generate(&z.slice(0..best.2.min(a.count))?, lab.as_ref().map(|l| &l[..best.2.min(a.count)]))?;
             // Best of three: one run of a few milliseconds is at the mercy of the scheduler.
             let mut fastest = f64::INFINITY;
             for _ in 0..3 {
@@ -181,7 +187,7 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
                 g.generate(&z, lab.as_deref())?;
                 fastest = fastest.min(s.elapsed().as_secs_f64());
             }
-            throughput.push((th, a.images as f64 / fastest));
+            throughput.push((th, a.count as f64 / fastest));
         }
         // PSNR against the first model in f32 compute (so with --f16-compute the first row too
         // shows what f16 compute costs in fidelity).
@@ -189,11 +195,15 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
             (None, false) => None,
             (None, true) => {
                 let reference = Generator::new(model.clone(), GeneratorOptions::default())?;
-                genloom::convert::compare_generators(&reference, &g1, 2026, 32).ok().map(|x| x.psnr_db)
+                genloom::convert::compare_generators(&reference, &g1, genloom::DEFAULT_SEED, 32)
+                    .ok()
+                    .map(|x| x.psnr_db)
             }
             (Some(f), _) => {
                 let reference = Generator::new(f.clone(), GeneratorOptions::default())?;
-                genloom::convert::compare_generators(&reference, &g1, 2026, 32).ok().map(|x| x.psnr_db)
+                genloom::convert::compare_generators(&reference, &g1, genloom::DEFAULT_SEED, 32)
+                    .ok()
+                    .map(|x| x.psnr_db)
             }
         };
         if first.is_none() {
@@ -233,45 +243,51 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
         return out_json(&report);
     }
     let mib = |b: f64| b / f64::from(1 << 20);
-    let mut s = format!(
-        "{:<28} {:>8} {:>7} {:>7} {:>15} {:>22} {:>22} {:>7} {:>16} {:>8}\n",
-        "model",
-        "file MiB",
-        "load ms",
-        "opt ms",
-        "batch 1 p50/p90",
-        "best mb: ms/img p50/p90",
-        "tiles/s by threads",
-        "GMAC/s",
-        "heap MiB pk/st",
-        "PSNR dB"
-    );
+    let mut s = String::new();
     for r in &report.rows {
-        let tp: Vec<String> = r.throughput.iter().map(|(t, v)| format!("{t}:{v:.0}")).collect();
-        let name: String = if r.model.len() > 28 {
-            format!("...{}", &r.model[r.model.len() - 25..])
-        } else {
-            r.model.clone()
-        };
-        s.push_str(&format!(
-            "{:<28} {:>8.2} {:>7.1} {:>7.1} {:>15} {:>22} {:>22} {:>7} {:>16} {:>8}\n",
-            name,
-            mib(r.file_bytes as f64),
-            r.load_ms,
-            r.optimise_ms,
-            format!("{:.3}/{:.3}", r.batch1_p50_ms, r.batch1_p90_ms),
-            format!("{}: {:.3}/{:.3}", r.best_micro_batch, r.best_p50_ms_per_image, r.best_p90_ms_per_image),
-            tp.join(" "),
-            r.best_gmacs_per_s.map(|g| format!("{g:.1}")).unwrap_or_else(|| "-".into()),
+        let line = |s: &mut String, what: &str, value: String| s.push_str(&format!("  {what:<30} {value}\n"));
+        s.push_str(&format!("{}\n", r.model));
+        line(&mut s, "file", format!("{:.2} MiB", mib(r.file_bytes as f64)));
+        line(&mut s, "load", format!("{:.1} ms", r.load_ms));
+        line(&mut s, "prepare (build the plans)", format!("{:.1} ms", r.optimise_ms));
+        line(
+            &mut s,
+            "batch 1, one image",
+            format!("{:.3} ms median, {:.3} ms 90th percentile", r.batch1_p50_ms, r.batch1_p90_ms),
+        );
+        line(
+            &mut s,
+            "fastest micro-batch",
             format!(
-                "{:.1}/{:.1}",
+                "{}: {:.3} ms per image median, {:.3} ms 90th percentile",
+                r.best_micro_batch, r.best_p50_ms_per_image, r.best_p90_ms_per_image
+            ),
+        );
+        let tp: Vec<String> = r
+            .throughput
+            .iter()
+            .map(|(t, v)| format!("{v:.0} with {t} thread{}", if *t == 1 { "" } else { "s" }))
+            .collect();
+        line(&mut s, "images/s", tp.join(", "));
+        if let Some(g) = r.best_gmacs_per_s {
+            line(&mut s, "compute rate", format!("{g:.1} GMAC/s (at the fastest micro-batch)"));
+        }
+        line(
+            &mut s,
+            "heap",
+            format!(
+                "{:.1} MiB peak, {:.1} MiB steady",
                 mib(r.peak_heap_load_bytes.max(r.peak_heap_generate_bytes) as f64),
                 mib(r.steady_heap_bytes as f64)
             ),
-            r.psnr_vs_first_db
-                .map(|p| if p.is_infinite() { "inf".to_string() } else { format!("{p:.1}") })
-                .unwrap_or_else(|| "-".into()),
-        ));
+        );
+        if let Some(p) = r.psnr_vs_first_db {
+            line(
+                &mut s,
+                "PSNR against the first model",
+                if p.is_infinite() { "identical pixels".to_string() } else { format!("{p:.1} dB") },
+            );
+        }
     }
     out(&s);
     Ok(())

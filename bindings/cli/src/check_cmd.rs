@@ -24,9 +24,9 @@ pub struct CheckArgs {
     /// Outputs saved from the training framework: LATENTS.npy OUTPUTS.npy.
     #[arg(long, num_args = 2, value_names = ["LATENTS", "OUTPUTS"])]
     pub reference: Option<Vec<PathBuf>>,
-    /// Labels fed with --reference (conditional models).
-    #[arg(long, value_name = "LABELS", requires = "reference")]
-    pub labels: Option<PathBuf>,
+    /// Labels fed with --reference (conditional models): an NPY file of integers.
+    #[arg(long, value_name = "FILE", requires = "reference")]
+    pub labels_in: Option<PathBuf>,
     /// --reference tolerance, absolute term as a share of the output range's width
     /// (|a - b| <= atol x width + rtol x |b|, the rule of numpy.testing.assert_allclose).
     #[arg(long, default_value_t = 5e-5)]
@@ -71,7 +71,7 @@ pub struct CheckArgs {
     #[arg(long, default_value_t = 1e-3)]
     pub dead_ratio: f64,
     /// Seed of every latent the gate draws.
-    #[arg(long, default_value_t = 1)]
+    #[arg(long, default_value_t = genloom::DEFAULT_SEED)]
     pub seed: u64,
     /// Warnings fail the gate too (exit 1).
     #[arg(long)]
@@ -126,7 +126,7 @@ pub fn run(a: &CheckArgs) -> CliResult {
                         )))
                     }
                 };
-                let labels = a.labels.as_ref().map(|f| genloom::npy::read_labels(f)).transpose()?;
+                let labels = a.labels_in.as_ref().map(|f| genloom::npy::read_labels(f)).transpose()?;
                 o.reference = Some(FrameworkReference { latents, labels, outputs });
             }
             check::check_path(p, &load, &o)?

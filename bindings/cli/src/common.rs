@@ -58,6 +58,14 @@ pub struct ModelArgs {
     /// The ONNX model (with its external data file beside it, if any). Default: the built-in demo
     /// model `tiles`.
     pub model: Option<PathBuf>,
+    #[command(flatten)]
+    pub signature: SignatureArgs,
+}
+
+/// How to read a model's signature where discovery cannot tell (every command that loads a
+/// model takes these).
+#[derive(Debug, Args, Clone, Default)]
+pub struct SignatureArgs {
     /// Name of the latent input, when discovery cannot tell.
     #[arg(long, value_name = "NAME")]
     pub latent_input: Option<String>,
@@ -70,24 +78,42 @@ pub struct ModelArgs {
     /// Name of the image output, when the model has several.
     #[arg(long, value_name = "NAME")]
     pub image_output: Option<String>,
-    /// Memory order of the image output: nchw or nhwc.
-    #[arg(long, value_name = "ORDER")]
-    pub layout: Option<String>,
+    /// Memory order of the image output.
+    #[arg(long, value_enum, value_name = "ORDER")]
+    pub layout: Option<LayoutArg>,
     /// Value range of the image output: tanh ([-1,1]), sigmoid ([0,1]), byte ([0,255]) or LO,HI.
     #[arg(long, value_name = "RANGE", allow_hyphen_values = true)]
     pub range: Option<String>,
 }
 
-impl ModelArgs {
+/// `--layout` values.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum LayoutArg {
+    /// Channels first: [N, C, H, W].
+    Nchw,
+    /// Channels last: [N, H, W, C].
+    Nhwc,
+}
+
+impl SignatureArgs {
     pub fn overrides(&self) -> CliResult<SignatureOverrides> {
         let mut o = SignatureOverrides::default();
         o.latent_input = self.latent_input.clone();
         o.label_input = self.label_input.clone();
         o.label_classes = self.label_classes;
         o.image_output = self.image_output.clone();
-        o.layout = self.layout.as_deref().map(str::parse).transpose()?;
+        o.layout = self.layout.map(|l| match l {
+            LayoutArg::Nchw => genloom::Layout::Nchw,
+            LayoutArg::Nhwc => genloom::Layout::Nhwc,
+        });
         o.range = self.range.as_deref().map(str::parse).transpose()?;
         Ok(o)
+    }
+}
+
+impl ModelArgs {
+    pub fn overrides(&self) -> CliResult<SignatureOverrides> {
+        self.signature.overrides()
     }
 
     /// What to call the model in messages.

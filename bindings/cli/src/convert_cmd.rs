@@ -7,14 +7,35 @@ use genloom::{Generator, GeneratorOptions, LoadOptions, Model, SampleOptions};
 use std::path::{Path, PathBuf};
 use std::time::Instant;
 
+/// `--to` values.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum PrecisionArg {
+    /// IEEE 754 binary32: the source packed into one file.
+    F32,
+    /// IEEE 754 binary16 weights.
+    F16,
+    /// int8 weights with DequantizeLinear.
+    Int8,
+}
+
+impl PrecisionArg {
+    fn precision(self) -> Precision {
+        match self {
+            PrecisionArg::F32 => Precision::F32,
+            PrecisionArg::F16 => Precision::F16,
+            PrecisionArg::Int8 => Precision::Int8,
+        }
+    }
+}
+
 /// Arguments of `convert`.
 #[derive(Debug, Args)]
 pub struct ConvertArgs {
     #[command(flatten)]
     pub model: ModelArgs,
     /// Target precision: f32 (packed into one file), f16 or int8.
-    #[arg(long, value_name = "PRECISION")]
-    pub to: String,
+    #[arg(long, value_enum, value_name = "PRECISION")]
+    pub to: PrecisionArg,
     /// Where to write the export (default: MODEL's name with `.PRECISION.onnx`, in the current folder).
     #[arg(long, short = 'o')]
     pub out: Option<PathBuf>,
@@ -31,12 +52,12 @@ pub struct ConvertArgs {
     /// Also write the report as JSON to this file.
     #[arg(long, value_name = "FILE")]
     pub report: Option<PathBuf>,
-    /// Seed of the evaluation latents.
-    #[arg(long, default_value_t = 2026)]
-    pub eval_seed: u64,
-    /// Number of evaluation latents.
+    /// Seed of the latents the fidelity report draws.
+    #[arg(long, default_value_t = genloom::DEFAULT_SEED)]
+    pub seed: u64,
+    /// Number of latents the fidelity report draws.
     #[arg(long, default_value_t = 64)]
-    pub eval_count: usize,
+    pub count: usize,
     /// Print the JSON report instead of the table.
     #[arg(long)]
     pub json: bool,
@@ -61,11 +82,11 @@ fn mib(b: u64) -> String {
 }
 
 pub fn run(a: &ConvertArgs) -> CliResult {
-    let precision: Precision = a.to.parse()?;
+    let precision = a.to.precision();
     let mut options = ConvertOptions::new(precision);
     options.per_channel = !a.per_tensor;
-    options.eval_seed = a.eval_seed;
-    options.eval_count = a.eval_count;
+    options.eval_seed = a.seed;
+    options.eval_count = a.count;
     if a.per_tensor && precision != Precision::Int8 {
         return Err(usage("--per-tensor applies to --to int8 only"));
     }

@@ -11,12 +11,30 @@ use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::time::Instant;
 
+/// `--prior` values.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum PriorArg {
+    /// The standard normal distribution N(0, I).
+    Gaussian,
+    /// Uniform on [-1, 1].
+    Uniform,
+}
+
+/// `--interp` values.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum InterpArg {
+    /// Spherical linear interpolation (Shoemake 1985): keeps latents at the prior's norm.
+    Slerp,
+    /// Straight-line interpolation.
+    Lerp,
+}
+
 /// How latents are drawn (shared by sample and morph).
 #[derive(Debug, Args, Clone)]
 pub struct LatentArgs {
-    /// Prior: gaussian or uniform.
-    #[arg(long, default_value = "gaussian", value_name = "PRIOR")]
-    pub prior: String,
+    /// Prior the latents are drawn from.
+    #[arg(long, value_enum, default_value_t = PriorArg::Gaussian, value_name = "PRIOR")]
+    pub prior: PriorArg,
     /// Resample latent components beyond this threshold (truncation trick), e.g. 1.0.
     #[arg(long, value_name = "C")]
     pub truncation: Option<f32>,
@@ -31,7 +49,10 @@ pub struct LatentArgs {
 impl LatentArgs {
     fn options(&self, seed: u64, count: usize) -> CliResult<SampleOptions> {
         let mut o = SampleOptions::new(seed, count);
-        o.prior = self.prior.parse::<Prior>()?;
+        o.prior = match self.prior {
+            PriorArg::Gaussian => Prior::Gaussian,
+            PriorArg::Uniform => Prior::Uniform,
+        };
         o.truncation = self.truncation;
         o.psi = self.psi;
         o.mode = if self.numpy { RngMode::NumpyCompatible } else { RngMode::Portable };
@@ -45,10 +66,10 @@ pub struct SampleArgs {
     #[command(flatten)]
     pub model: ModelArgs,
     /// Number of images.
-    #[arg(long, short = 'n', default_value_t = 16)]
+    #[arg(long, short = 'n', default_value_t = 16, conflicts_with = "latents_in")]
     pub count: usize,
     /// Seed of the latents (image i of seed s is the same whatever the count).
-    #[arg(long, short = 's', default_value_t = 0)]
+    #[arg(long, short = 's', default_value_t = genloom::DEFAULT_SEED, conflicts_with = "latents_in")]
     pub seed: u64,
     #[command(flatten)]
     pub latent: LatentArgs,
@@ -282,7 +303,7 @@ pub struct MorphArgs {
     #[command(flatten)]
     pub model: ModelArgs,
     /// Keyframe seeds, comma-separated (each seed's first latent).
-    #[arg(long, value_name = "SEEDS", default_value = "1,2,3")]
+    #[arg(long, value_name = "SEEDS", default_value = "1,2,3", conflicts_with = "keyframes")]
     pub seeds: String,
     /// Keyframes from an NPY file ((K, Z)) instead of seeds.
     #[arg(long, value_name = "FILE")]
@@ -292,15 +313,16 @@ pub struct MorphArgs {
     /// Frames from one keyframe to the next.
     #[arg(long, default_value_t = 16)]
     pub steps: usize,
-    /// Interpolation: slerp or lerp.
-    #[arg(long, default_value = "slerp")]
-    pub interp: String,
+    /// Interpolation between keyframes.
+    #[arg(long, value_enum, default_value_t = InterpArg::Slerp)]
+    pub interp: InterpArg,
     /// Return to the first keyframe for a seamless loop.
     #[arg(long = "loop")]
     pub looped: bool,
-    /// Class label of a conditional model (one class for the whole path).
-    #[arg(long, value_name = "K")]
-    pub label: Option<i64>,
+    /// Class labels of a conditional model, as `sample --label` takes them: `cycle`, one class
+    /// (default 0) for the whole path, or a list of one class per frame.
+    #[arg(long, value_name = "LABELS")]
+    pub label: Option<String>,
     /// Output: a .gif animation or a .png strip of frames.
     #[arg(long, short = 'o', default_value = "morph.gif")]
     pub out: PathBuf,
@@ -348,7 +370,10 @@ pub fn morph(a: &MorphArgs) -> CliResult {
             a.out.display()
         )));
     }
-    let interpolation: Interpolation = a.interp.parse()?;
+    let interpolation = match a.interp {
+        InterpArg::Slerp => Interpolation::Slerp,
+        InterpArg::Lerp => Interpolation::Lerp,
+    };
     let (model, _) = a.model.load()?;
     let dim = model.signature().latent.dim;
     let (keys, seeds) = match &a.keyframes {
@@ -372,13 +397,12 @@ pub fn morph(a: &MorphArgs) -> CliResult {
     let frames = genloom::latent::path(&keys, &po)?;
     let sha256 = model.info().sha256.clone();
     let (g, _) = a.run.generator(model)?;
-    let labels = match (&g.signature().label, a.label) {
-        (None, None) => None,
-        (None, Some(_)) => {
-            return Err(usage("this model is unconditional (it has no label input): drop --label"))
-        }
-        (Some(_), l) => Some(vec![l.unwrap_or(0); frames.count()]),
+    // A conditional model draws the whole path in class 0 unless told otherwise.
+    let spec = match (&g.signature().label, a.label.as_deref()) {
+        (Some(_), None) => Some("0"),
+        (_, spec) => spec,
     };
+    let labels = labels_for(&g, spec, None, frames.count())?;
     let (images, generate_ms) = run_with_bar(&g, &frames, labels.as_deref(), a.json)?;
     let (tiles, corrections) = pixels::all_pixels(&images, PixelFormat::natural(images.channels))?;
     ensure_parent(&a.out)?;
@@ -400,7 +424,7 @@ pub fn morph(a: &MorphArgs) -> CliResult {
         let provenance = Provenance {
             model: a.model.display_name(),
             model_sha256: sha256,
-            origin: format!("{} frames of a {} path through {keyframes}", frames.count(), a.interp),
+            origin: format!("{} frames of a {interpolation:?} path through {keyframes}", frames.count()),
         };
         pixels::grid(&tiles, &o)?.write_png_with(&a.out, (!a.no_provenance).then_some(&provenance))?;
     }

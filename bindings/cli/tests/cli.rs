@@ -176,13 +176,18 @@ fn bad_input_exits_2_with_one_line() {
     let d = tempfile::tempdir().unwrap();
     let cases: &[(&[&str], &str)] = &[
         (&["inspect", "no-such.onnx"], "no-such.onnx"),
-        (&["sample", "--prior", "cauchy"], "prior is `cauchy`, expected `gaussian` or `uniform`"),
+        (&["sample", "--prior", "cauchy"], "invalid value 'cauchy' for '--prior <PRIOR>'"),
+        (&["sample", "--latents-in", "z.npy", "--seed", "3"], "cannot be used with"),
+        (&["morph", "--keyframes", "k.npy", "--seeds", "1,2"], "cannot be used with"),
+        (&["convert", "--to", "int4"], "[possible values: f32, f16, int8]"),
+        (&["bench", "--threads", "0"], "every --threads value must be at least 1"),
         (&["sample", "--count", "0"], "count is 0, expected at least 1"),
         (&["sample", "--psi", "2"], "psi is 2"),
         (&["sample", "--label", "1"], "unconditional"),
         (&["sample", "--out", "tiles.jpg"], "expected a .png file or a folder"),
         (&["morph", "--seeds", "a,b"], "--seeds is `a,b`"),
         (&["morph", "--out", "m.mp4"], "expected a .gif animation or a .png strip"),
+        (&["morph", "--label", "2"], "unconditional"),
         (&["sample", "--range", "wide"], "range is `wide`"),
         (&["frobnicate"], "unrecognized subcommand"),
     ];
@@ -237,7 +242,7 @@ fn convert_writes_exports_and_refuses_short_fidelity() {
             "t8.onnx",
             "--report",
             "r.json",
-            "--eval-count",
+            "--count",
             "8",
         ],
         d.path(),
@@ -263,7 +268,7 @@ fn convert_writes_exports_and_refuses_short_fidelity() {
             "bad.onnx",
             "--min-psnr",
             "200",
-            "--eval-count",
+            "--count",
             "4",
         ],
         d.path(),
@@ -287,7 +292,7 @@ fn convert_writes_exports_and_refuses_short_fidelity() {
             "kept.onnx",
             "--report",
             "a-folder",
-            "--eval-count",
+            "--count",
             "2",
         ],
         d.path(),
@@ -375,7 +380,7 @@ fn check_report_identifies_what_was_checked_and_honours_strict_and_skip() {
 fn bench_reports_every_column() {
     let d = tempfile::tempdir().unwrap();
     let o = genloom(
-        &["bench", "--batch", "1,4", "--iters", "5", "--images", "16", "--threads", "1", "--json"],
+        &["bench", "--micro-batch", "1,4", "--iters", "5", "--count", "16", "--threads", "1", "--json"],
         d.path(),
     );
     assert!(o.status.success(), "{}", text(&o.stderr));
@@ -418,11 +423,11 @@ fn f16_compute_draws_nearly_the_same_tiles() {
     let o = genloom(
         &[
             "bench",
-            "--batch",
+            "--micro-batch",
             "1",
             "--iters",
             "3",
-            "--images",
+            "--count",
             "8",
             "--threads",
             "1",

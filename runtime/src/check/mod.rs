@@ -238,7 +238,7 @@ pub struct FrameworkReference {
 #[derive(Debug, Clone)]
 #[non_exhaustive]
 pub struct CheckOptions {
-    /// Seed of every latent the gate draws. Default 1.
+    /// Seed of every latent the gate draws. Default [`crate::DEFAULT_SEED`].
     pub seed: u64,
     /// The largest batch to try, 2 to 1024. Default 16.
     pub max_batch: usize,
@@ -282,7 +282,7 @@ impl Default for CheckOptions {
     fn default() -> Self {
         let close = Tolerance { atol: 5e-5, rtol: 1e-5 };
         CheckOptions {
-            seed: 1,
+            seed: crate::DEFAULT_SEED,
             max_batch: 16,
             samples: 64,
             probe_count: 16,
