@@ -91,10 +91,11 @@ typedef enum {
      */
     GENLOOM_STATUS_LOAD_FAILED = 4,
     /**
-     * The model loaded but does not look like a supported generator (no latent input found,
-     * unknown value range, ...).
+     * The model loaded but is not a generator genloom recognises (no latent input found,
+     * unknown value range, ...). Called GENLOOM_STATUS_SIGNATURE before 0.2, a name that read
+     * like cryptographic signing; that name stays defined as an alias for one more release.
      */
-    GENLOOM_STATUS_SIGNATURE = 5,
+    GENLOOM_STATUS_UNRECOGNIZED_MODEL = 5,
     /**
      * Inference failed, or gave an output that does not match the signature.
      */
@@ -302,7 +303,7 @@ genloom_status genloom_last_error_copy(char *buffer,
  *
  * On success `*generator` receives a new handle (free it with `genloom_generator_free`); on
  * failure it is not written. Statuses: `GENLOOM_STATUS_IO` (file missing or unreadable),
- * `GENLOOM_STATUS_LOAD_FAILED`, `GENLOOM_STATUS_SIGNATURE`, `GENLOOM_STATUS_LIMIT`,
+ * `GENLOOM_STATUS_LOAD_FAILED`, `GENLOOM_STATUS_UNRECOGNIZED_MODEL`, `GENLOOM_STATUS_LIMIT`,
  * `GENLOOM_STATUS_INVALID_ARGUMENT` (a path that is not UTF-8 on Windows).
  *
  * # Safety
@@ -775,3 +776,8 @@ genloom_status genloom_generator_sample(const genloom_generator *generator,
 #endif  // __cplusplus
 
 #endif  /* GENLOOM_H */
+
+/* Deprecated: the old name of GENLOOM_STATUS_UNRECOGNIZED_MODEL (same value, 5). */
+#ifndef GENLOOM_STATUS_SIGNATURE
+#define GENLOOM_STATUS_SIGNATURE GENLOOM_STATUS_UNRECOGNIZED_MODEL
+#endif

@@ -91,7 +91,7 @@ unsafe fn open(
 ///
 /// On success `*generator` receives a new handle (free it with `genloom_generator_free`); on
 /// failure it is not written. Statuses: `GENLOOM_STATUS_IO` (file missing or unreadable),
-/// `GENLOOM_STATUS_LOAD_FAILED`, `GENLOOM_STATUS_SIGNATURE`, `GENLOOM_STATUS_LIMIT`,
+/// `GENLOOM_STATUS_LOAD_FAILED`, `GENLOOM_STATUS_UNRECOGNIZED_MODEL`, `GENLOOM_STATUS_LIMIT`,
 /// `GENLOOM_STATUS_INVALID_ARGUMENT` (a path that is not UTF-8 on Windows).
 ///
 /// # Safety

@@ -25,9 +25,10 @@ pub enum genloom_status {
     /// (which builds a plan per micro-batch size on first use, so a generation call can return
     /// it too).
     LoadFailed = 4,
-    /// The model loaded but does not look like a supported generator (no latent input found,
-    /// unknown value range, ...).
-    Signature = 5,
+    /// The model loaded but is not a generator genloom recognises (no latent input found,
+    /// unknown value range, ...). Called GENLOOM_STATUS_SIGNATURE before 0.2, a name that read
+    /// like cryptographic signing; that name stays defined as an alias for one more release.
+    UnrecognizedModel = 5,
     /// Inference failed, or gave an output that does not match the signature.
     InferenceFailed = 6,
     /// The progress callback returned 0 and the work stopped; nothing was written.
@@ -56,7 +57,7 @@ impl genloom_status {
             InvalidArgument,
             BufferTooSmall,
             LoadFailed,
-            Signature,
+            UnrecognizedModel,
             InferenceFailed,
             Cancelled,
             Limit,
@@ -76,7 +77,7 @@ impl genloom_status {
             genloom_status::InvalidArgument => b"GENLOOM_STATUS_INVALID_ARGUMENT\0",
             genloom_status::BufferTooSmall => b"GENLOOM_STATUS_BUFFER_TOO_SMALL\0",
             genloom_status::LoadFailed => b"GENLOOM_STATUS_LOAD_FAILED\0",
-            genloom_status::Signature => b"GENLOOM_STATUS_SIGNATURE\0",
+            genloom_status::UnrecognizedModel => b"GENLOOM_STATUS_UNRECOGNIZED_MODEL\0",
             genloom_status::InferenceFailed => b"GENLOOM_STATUS_INFERENCE_FAILED\0",
             genloom_status::Cancelled => b"GENLOOM_STATUS_CANCELLED\0",
             genloom_status::Limit => b"GENLOOM_STATUS_LIMIT\0",
@@ -92,7 +93,7 @@ impl genloom_status {
 pub(crate) fn status_of(error: &Error) -> genloom_status {
     match error.kind() {
         ErrorKind::Load => genloom_status::LoadFailed,
-        ErrorKind::Signature => genloom_status::Signature,
+        ErrorKind::Signature => genloom_status::UnrecognizedModel,
         ErrorKind::InvalidArgument | ErrorKind::Npy => genloom_status::InvalidArgument,
         ErrorKind::Inference => genloom_status::InferenceFailed,
         ErrorKind::Cancelled => genloom_status::Cancelled,

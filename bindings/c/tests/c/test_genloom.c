@@ -206,6 +206,9 @@ static void test_status_names(void) {
     CHECK(GENLOOM_STATUS_BUFFER_TOO_SMALL == 3);
     CHECK(GENLOOM_STATUS_PANIC == 11);
     CHECK(strcmp(genloom_status_name(GENLOOM_STATUS_OK), "GENLOOM_STATUS_OK") == 0);
+    /* The renamed status keeps its number, and its old name stays an alias for one release. */
+    CHECK(GENLOOM_STATUS_UNRECOGNIZED_MODEL == 5 && GENLOOM_STATUS_SIGNATURE == 5);
+    CHECK(strcmp(genloom_status_name(5), "GENLOOM_STATUS_UNRECOGNIZED_MODEL") == 0);
     CHECK(strcmp(genloom_status_name(GENLOOM_STATUS_CANCELLED), "GENLOOM_STATUS_CANCELLED") == 0);
     CHECK(strcmp(genloom_status_name(GENLOOM_STATUS_INTERNAL), "GENLOOM_STATUS_INTERNAL") == 0);
     CHECK(strcmp(genloom_status_name(-1), "GENLOOM_STATUS_UNKNOWN") == 0);
