@@ -145,7 +145,8 @@ pub enum Error {
     /// The output value range could not be discovered and was not declared.
     #[error(
         "the value range of output `{output}` is unknown (its last op is {last_op}, not Tanh or Sigmoid); \
-         declare it: `--range tanh` ([-1,1]), `--range sigmoid` ([0,1]) or `--range byte` ([0,255])"
+         declare it in the signature overrides (range tanh for [-1,1], sigmoid for [0,1], byte for [0,255]; \
+         `--range` on the command line, `SignatureOverrides::range` in Rust)"
     )]
     RangeUnknown {
         /// The output.

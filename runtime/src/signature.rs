@@ -391,7 +391,7 @@ pub(crate) fn discover_inputs(graph: &pb::GraphProto, ov: &SignatureOverrides) -
                     } else {
                         return Err(Error::Signature {
                             reason: format!(
-                                "several float inputs could be the latent ({}); name it with `--latent-input NAME`",
+                                "several float inputs could be the latent ({}); name it in the signature overrides (latent input; `--latent-input NAME` on the command line)",
                                 many.iter().map(|i| format!("`{}`", i.name)).collect::<Vec<_>>().join(", ")
                             ),
                         });
@@ -489,7 +489,7 @@ pub(crate) fn discover_inputs(graph: &pb::GraphProto, ov: &SignatureOverrides) -
                 } else {
                     return Err(Error::Signature {
                         reason: format!(
-                            "the model has several outputs ({}); name the image with `--image-output NAME`",
+                            "the model has several outputs ({}); name the image in the signature overrides (image output; `--image-output NAME` on the command line)",
                             many.iter().map(|o| format!("`{}`", o.name)).collect::<Vec<_>>().join(", ")
                         ),
                     });
@@ -515,7 +515,7 @@ fn label_input(graph: &pb::GraphProto, d: &InputDesc, ov: &SignatureOverrides) -
             Some(k) => k,
             None => classes_from_graph(graph, &d.name).ok_or_else(|| Error::Signature {
                 reason: format!(
-                    "cannot tell how many classes label input `{}` has (no Gather or OneHot reads it directly); pass `--label-classes K`",
+                    "cannot tell how many classes label input `{}` has (no Gather or OneHot reads it directly); give the class count in the signature overrides (label classes; `--label-classes K` on the command line)",
                     d.name
                 ),
             })?,
