@@ -172,8 +172,7 @@ impl Generator {
         };
         let plans = Plans::new(
             typed,
-            model.batch_symbol.clone(),
-            fixed,
+            model.batch.clone(),
             if options.tune { options.max_cached_plans.max(6) } else { options.max_cached_plans.max(1) },
         );
         let mut generator = Generator { model, plans, options };

@@ -103,12 +103,32 @@ pub struct ModelInfo {
 pub struct Model {
     pub(crate) proto: pb::ModelProto,
     pub(crate) typed: TypedModel,
-    pub(crate) batch_symbol: Option<Symbol>,
+    pub(crate) batch: BatchAxis,
     pub(crate) input_order: Vec<InputRole>,
     pub(crate) output_index: usize,
     signature: Signature,
     info: ModelInfo,
     limits: Limits,
+}
+
+/// The batch axis of a typed model: a symbol every plan fixes to its micro-batch, or a size
+/// the export fixed.
+#[derive(Debug, Clone)]
+pub(crate) enum BatchAxis {
+    /// Any batch: the symbol stands for it.
+    Symbolic(Symbol),
+    /// Only this batch; requests are looped and padded to it.
+    Fixed(usize),
+}
+
+impl BatchAxis {
+    /// The fixed batch, if the export fixed one.
+    pub(crate) fn fixed(&self) -> Option<usize> {
+        match self {
+            BatchAxis::Fixed(n) => Some(*n),
+            BatchAxis::Symbolic(_) => None,
+        }
+    }
 }
 
 /// What a tract input of the model is fed with.
@@ -159,8 +179,7 @@ impl Model {
         let nodes_after_passes = graph.node.len();
 
         let found = signature::discover_inputs(graph, &options.overrides)?;
-        let (typed, batch_symbol, input_order, output_index, image_shape, macs) =
-            build_typed(&proto, &found)?;
+        let (typed, batch, input_order, output_index, image_shape, macs) = build_typed(&proto, &found)?;
         let signature = signature::finish(graph, &found, &image_shape, &options.overrides)?;
         let pixels = signature.image.height as u64 * signature.image.width as u64;
         check_limit(
@@ -194,16 +213,7 @@ impl Model {
             nodes_after_passes,
             passes,
         };
-        Ok(Model {
-            proto,
-            typed,
-            batch_symbol,
-            input_order,
-            output_index,
-            signature,
-            info,
-            limits: options.limits,
-        })
+        Ok(Model { proto, typed, batch, input_order, output_index, signature, info, limits: options.limits })
     }
 
     /// The discovered (or declared) signature.
@@ -643,7 +653,7 @@ fn check_operators(proto: &pb::ModelProto, known: impl Fn(&str) -> bool) -> Resu
     Ok(())
 }
 
-type Built = (TypedModel, Option<Symbol>, Vec<InputRole>, usize, Vec<TDim>, Option<u64>);
+type Built = (TypedModel, BatchAxis, Vec<InputRole>, usize, Vec<TDim>, Option<u64>);
 
 /// Parses with tract, fixes the input facts from the discovered inputs, and types the model.
 fn build_typed(proto: &pb::ModelProto, found: &signature::FoundInputs) -> Result<Built> {
@@ -656,14 +666,13 @@ fn build_typed(proto: &pb::ModelProto, found: &signature::FoundInputs) -> Result
         });
     }
     let mut model = parsed.model;
-    let batch_symbol = match found.batch {
-        signature::Batch::Symbolic => Some(model.symbols.sym("N")),
-        signature::Batch::Fixed(_) => None,
+    let batch = match found.batch {
+        signature::Batch::Symbolic => BatchAxis::Symbolic(model.symbols.sym("N")),
+        signature::Batch::Fixed(n) => BatchAxis::Fixed(n),
     };
-    let batch_dim: TDim = match (&batch_symbol, found.batch) {
-        (Some(s), _) => s.clone().into(),
-        (None, signature::Batch::Fixed(n)) => n.to_dim(),
-        (None, signature::Batch::Symbolic) => 1.to_dim(),
+    let batch_dim: TDim = match &batch {
+        BatchAxis::Symbolic(s) => s.clone().into(),
+        BatchAxis::Fixed(n) => n.to_dim(),
     };
     let mut roles = vec![];
     let inputs: Vec<OutletId> =
@@ -721,15 +730,15 @@ fn build_typed(proto: &pb::ModelProto, found: &signature::FoundInputs) -> Result
         });
     }
     let shape: Vec<TDim> = fact.shape.iter().cloned().collect();
-    let macs = count_macs(proto, &typed, batch_symbol.as_ref());
-    Ok((typed, batch_symbol, roles, output_index, shape, macs))
+    let macs = count_macs(proto, &typed, &batch);
+    Ok((typed, batch, roles, output_index, shape, macs))
 }
 
-fn count_macs(proto: &pb::ModelProto, typed: &TypedModel, batch: Option<&Symbol>) -> Option<u64> {
+fn count_macs(proto: &pb::ModelProto, typed: &TypedModel, batch: &BatchAxis) -> Option<u64> {
     let graph = proto.graph.as_ref()?;
     let values = match batch {
-        Some(s) => SymbolValues::default().with(s, 1),
-        None => SymbolValues::default(),
+        BatchAxis::Symbolic(s) => SymbolValues::default().with(s, 1),
+        BatchAxis::Fixed(_) => SymbolValues::default(),
     };
     let mut producer: HashMap<&str, (&str, usize)> = HashMap::new();
     for n in &graph.node {

@@ -6,7 +6,7 @@
 //! [`Plans`] serves any number of threads at once.
 
 use crate::error::{Error, Result};
-use crate::model::{guard, InputRole, Model};
+use crate::model::{guard, BatchAxis, InputRole, Model};
 use crate::signature::LabelKind;
 use std::collections::HashMap;
 use std::sync::{Arc, Mutex, OnceLock};
@@ -55,14 +55,14 @@ pub(crate) fn cast_inputs(plan: &Runnable, inputs: TVec<TValue>) -> Result<TVec<
 }
 
 /// `typed` with its batch symbol replaced by `batch` (unchanged when the batch is fixed).
-pub(crate) fn with_batch(typed: &TypedModel, symbol: Option<&Symbol>, batch: usize) -> Result<TypedModel> {
-    match symbol {
-        Some(sym) => {
+pub(crate) fn with_batch(typed: &TypedModel, axis: &BatchAxis, batch: usize) -> Result<TypedModel> {
+    match axis {
+        BatchAxis::Symbolic(sym) => {
             let subs = HashMap::from([(sym.clone(), TDim::from(batch as i64))]);
             let typed = typed.clone();
             guard(format!("fix the batch at {batch}"), move || typed.set_symbols(&subs))
         }
-        None => Ok(typed.clone()),
+        BatchAxis::Fixed(_) => Ok(typed.clone()),
     }
 }
 
@@ -86,7 +86,7 @@ pub(crate) struct ProbedValue {
 pub(crate) fn probe_plan(model: &Model, batch: usize) -> Result<(Runnable, Vec<ProbedValue>, usize)> {
     use tract_onnx::tract_core::ops::konst::Const;
     use tract_onnx::tract_core::ops::source::TypedSource;
-    let mut typed = with_batch(&model.typed, model.batch_symbol.as_ref(), batch)?;
+    let mut typed = with_batch(&model.typed, &model.batch, batch)?;
     let image = typed.output_outlets().map_err(|e| Error::tract("list the outputs", e))?[model.output_index];
     let order = typed.eval_order().map_err(|e| Error::tract("order the graph's nodes", e))?;
     let mut outlets = vec![];
@@ -123,28 +123,15 @@ pub(crate) fn probe_plan(model: &Model, batch: usize) -> Result<(Runnable, Vec<P
 #[derive(Debug)]
 pub(crate) struct Plans {
     typed: TypedModel,
-    batch_symbol: Option<Symbol>,
-    fixed_batch: Option<usize>,
+    batch: BatchAxis,
     symbolic: OnceLock<Runnable>,
     cache: Mutex<HashMap<usize, Runnable>>,
     max_cached: usize,
 }
 
 impl Plans {
-    pub(crate) fn new(
-        typed: TypedModel,
-        batch_symbol: Option<Symbol>,
-        fixed_batch: Option<usize>,
-        max_cached: usize,
-    ) -> Plans {
-        Plans {
-            typed,
-            batch_symbol,
-            fixed_batch,
-            symbolic: OnceLock::new(),
-            cache: Mutex::new(HashMap::new()),
-            max_cached,
-        }
+    pub(crate) fn new(typed: TypedModel, batch: BatchAxis, max_cached: usize) -> Plans {
+        Plans { typed, batch, symbolic: OnceLock::new(), cache: Mutex::new(HashMap::new()), max_cached }
     }
 
     /// Builds the plan for `batch` now (so the first generation does not pay for it).
@@ -160,7 +147,7 @@ impl Plans {
     }
 
     fn build_fixed(&self, batch: usize) -> Result<Runnable> {
-        let model = with_batch(&self.typed, self.batch_symbol.as_ref(), batch)?;
+        let model = with_batch(&self.typed, &self.batch, batch)?;
         // tract can panic on shapes it did not expect while it optimises (a fuzz find: its
         // ConvTranspose padding arithmetic overflowed here): guarded like every tract call.
         guard(format!("optimise and build the batch-{batch} plan"), move || {
@@ -171,7 +158,7 @@ impl Plans {
     /// The plan to run a batch of `batch` images: a cached fixed plan, a newly built one while the
     /// cache has room, or the symbolic plan.
     pub(crate) fn plan_for(&self, batch: usize) -> Result<Runnable> {
-        if let Some(fixed) = self.fixed_batch {
+        if let Some(fixed) = self.batch.fixed() {
             if fixed != batch {
                 return Err(Error::Output {
                     reason: format!("internal: batch {batch} asked of a fixed batch-{fixed} model"),
@@ -182,7 +169,7 @@ impl Plans {
             return Ok(p);
         }
         let room = self.cache.lock().map(|c| c.len() < self.max_cached).unwrap_or(false);
-        if room || self.batch_symbol.is_none() {
+        if room || self.batch.fixed().is_some() {
             let p = self.build_fixed(batch)?;
             if let Ok(mut c) = self.cache.lock() {
                 return Ok(c.entry(batch).or_insert(p).clone());
