@@ -1,0 +1,152 @@
+//! tract parsing and typing with the discovered inputs, and the multiply-accumulate count.
+
+use super::*;
+
+pub(super) type Built = (TypedModel, BatchAxis, Vec<InputRole>, usize, Vec<TDim>, Option<u64>);
+
+/// Parses with tract, fixes the input facts from the discovered inputs, and types the model.
+pub(super) fn build_typed(proto: &pb::ModelProto, found: &signature::FoundInputs) -> Result<Built> {
+    let onnx = tract_onnx::onnx().with_ignore_output_shapes(true).with_ignore_value_info(true);
+    check_operators(proto, |op| onnx.op_register.0.contains_key(op))?;
+    let parsed = guard("parse the model", || onnx.parse(proto, None))?;
+    if !parsed.unresolved_inputs.is_empty() {
+        return Err(Error::Graph {
+            reason: format!("inputs {:?} could not be resolved", parsed.unresolved_inputs),
+        });
+    }
+    let mut model = parsed.model;
+    let batch = match found.batch {
+        signature::Batch::Symbolic => BatchAxis::Symbolic(model.symbols.sym("N")),
+        signature::Batch::Fixed(n) => BatchAxis::Fixed(n),
+    };
+    let batch_dim: TDim = match &batch {
+        BatchAxis::Symbolic(s) => s.clone().into(),
+        BatchAxis::Fixed(n) => n.to_dim(),
+    };
+    let mut roles = vec![];
+    let inputs: Vec<OutletId> =
+        model.input_outlets().map_err(|e| Error::tract("list the inputs", e))?.to_vec();
+    for (ix, outlet) in inputs.iter().enumerate() {
+        let name = model.node(outlet.node).name.clone();
+        let fact = if name == found.latent.name {
+            roles.push(InputRole::Latent);
+            let mut shape: TVec<TDim> = tvec![batch_dim.clone(), found.latent.dim.to_dim()];
+            if found.latent.layout == signature::LatentLayout::Spatial {
+                shape.push(1.to_dim());
+                shape.push(1.to_dim());
+            }
+            InferenceFact::dt_shape(f32::datum_type(), shape)
+        } else if found.label.as_ref().is_some_and(|l| l.name == name) {
+            roles.push(InputRole::Label);
+            let label = found.label.as_ref().expect("checked above");
+            match label.kind {
+                signature::LabelKind::Index => {
+                    let dt = if label.int32 { i32::datum_type() } else { i64::datum_type() };
+                    InferenceFact::dt_shape(dt, tvec![batch_dim.clone()])
+                }
+                signature::LabelKind::OneHot => InferenceFact::dt_shape(
+                    f32::datum_type(),
+                    tvec![batch_dim.clone(), label.classes.to_dim()],
+                ),
+            }
+        } else {
+            return Err(Error::Signature {
+                reason: format!("tract sees an input `{name}` that is neither the latent nor the label"),
+            });
+        };
+        model
+            .set_input_fact(ix, fact)
+            .map_err(|e| Error::tract(format!("set the fact of input `{name}`"), e))?;
+    }
+    // Find the image output among the model outputs.
+    let outputs: Vec<OutletId> =
+        model.output_outlets().map_err(|e| Error::tract("list the outputs", e))?.to_vec();
+    let output_index = outputs
+        .iter()
+        .position(|o| parsed.outlets_by_name.get(&found.output).is_some_and(|x| x == o))
+        .ok_or_else(|| Error::Signature {
+            reason: format!("output `{}` is not among tract's outputs", found.output),
+        })?;
+    let typed = guard("type the model (infer every shape and type)", || model.into_typed())?;
+    let out = typed.output_outlets().map_err(|e| Error::tract("list the outputs", e))?[output_index];
+    let fact = typed.outlet_fact(out).map_err(|e| Error::tract("read the output fact", e))?;
+    if fact.datum_type != f32::datum_type()
+        && fact.datum_type != f16::datum_type()
+        && fact.datum_type != f64::datum_type()
+    {
+        return Err(Error::Signature {
+            reason: format!("output `{}` is {:?}, expected a float tensor", found.output, fact.datum_type),
+        });
+    }
+    let shape: Vec<TDim> = fact.shape.iter().cloned().collect();
+    let macs = count_macs(proto, &typed, &batch);
+    Ok((typed, batch, roles, output_index, shape, macs))
+}
+
+pub(super) fn count_macs(proto: &pb::ModelProto, typed: &TypedModel, batch: &BatchAxis) -> Option<u64> {
+    let graph = proto.graph.as_ref()?;
+    let values = match batch {
+        BatchAxis::Symbolic(s) => SymbolValues::default().with(s, 1),
+        BatchAxis::Fixed(_) => SymbolValues::default(),
+    };
+    let mut producer: HashMap<&str, (&str, usize)> = HashMap::new();
+    for n in &graph.node {
+        for (slot, o) in n.output.iter().enumerate() {
+            producer.insert(o.as_str(), (n.name.as_str(), slot));
+        }
+    }
+    let inits: HashMap<&str, &pb::TensorProto> =
+        graph.initializer.iter().map(|t| (t.name.as_str(), t)).collect();
+    // Shapes per sample (batch evaluated at 1), read from tract's typed model.
+    let shape_of = |name: &str| -> Option<Vec<u64>> {
+        if let Some(t) = inits.get(name) {
+            return Some(t.dims.iter().map(|&d| d.max(0) as u64).collect());
+        }
+        let (node, slot) = match producer.get(name) {
+            Some(&(n, s)) => (n, s),
+            None => (name, 0),
+        };
+        // tract keeps the ONNX name on the last node of an op's expansion, or names the
+        // expansion `NAME.something`: take the exact name, else the last non-constant `NAME.*`.
+        let node = typed.node_by_name(node).ok().or_else(|| {
+            let prefix = format!("{node}.");
+            typed
+                .nodes()
+                .iter()
+                .filter(|n| n.name.starts_with(&prefix) && n.op.name() != "Const")
+                .max_by_key(|n| n.id)
+        })?;
+        let fact = &node.outputs.get(slot).or_else(|| node.outputs.first())?.fact;
+        fact.shape.iter().map(|d| d.eval(&values).to_usize().ok().map(|v| v as u64)).collect()
+    };
+    let mut total = 0u64;
+    for n in &graph.node {
+        let macs = match n.op_type.as_str() {
+            "Conv" => {
+                // Each output element sums C_in/group * kH * kW products.
+                let w = shape_of(n.input.get(1)?)?;
+                let y = shape_of(n.output.first()?)?;
+                y.iter().skip(1).product::<u64>() * w.iter().skip(1).product::<u64>()
+            }
+            "ConvTranspose" => {
+                // Each input element meets C_out/group * kH * kW weights.
+                let x = shape_of(n.input.first()?)?;
+                let w = shape_of(n.input.get(1)?)?;
+                x.iter().skip(1).product::<u64>() * w.iter().skip(1).product::<u64>()
+            }
+            "Gemm" | "MatMul" => {
+                let a = shape_of(n.input.first()?)?;
+                let y = shape_of(n.output.first()?)?;
+                let k = if n.op_type == "Gemm" && n.attribute.iter().any(|a| a.name == "transA" && a.i == 1) {
+                    *a.first()?
+                } else {
+                    *a.last()?
+                };
+                y.iter().skip(1).product::<u64>() * k
+            }
+            _ => 0,
+        };
+        total += macs;
+    }
+    Some(total)
+}
