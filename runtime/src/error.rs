@@ -425,10 +425,11 @@ mod tests {
         assert_eq!(e.chain(), "tract could not type the model: inner cause");
         let e = Error::tract_run("run a batch of 8", std::io::Error::other("deeper"));
         assert_eq!(e.kind(), ErrorKind::Inference);
+        assert_eq!(e.chain(), "tract could not run a batch of 8: deeper");
         assert_eq!(e.kind().as_str(), "inference");
         // A cause already quoted by the message is not repeated.
         let io = Error::io("read", "m.onnx", std::io::Error::other("gone"));
-        assert_eq!(io.chain(), io.to_string());
+        assert_eq!(io.chain(), "could not read m.onnx: gone");
         assert_eq!(io.kind(), ErrorKind::Io);
     }
 }

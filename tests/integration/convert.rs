@@ -4,7 +4,7 @@
 use genloom::convert::{self, ConvertOptions, KeepFloat, Precision};
 use genloom::pixels::{PixelFormat, Pixels};
 use genloom::{Generator, GeneratorOptions, LoadOptions, Model};
-use genloom_tests::{demo, judge};
+use genloom_tests::{demo, judge, ladder};
 use std::ffi::OsStr;
 
 fn source(name: &str) -> Model {
@@ -83,9 +83,14 @@ fn demo_targets_for_size_and_fidelity() {
     let int8 = convert::convert(&src, &o).unwrap().report;
     assert!(f16.size_ratio <= 0.52, "f16 is {:.1}% of the f32 file", f16.size_ratio * 100.0);
     assert!(int8.size_ratio <= 0.28, "int8 is {:.1}% of the f32 file", int8.size_ratio * 100.0);
-    assert!(f16.fidelity.psnr_db >= 45.0, "f16 PSNR {}", f16.fidelity.psnr_db);
-    assert!(int8.fidelity.psnr_db >= 30.0 && int8.fidelity.ssim >= 0.95, "int8 {:?}", int8.fidelity);
-    assert_eq!(f16.fidelity.images, 64);
+    assert!(f16.fidelity.psnr_db >= ladder::F16_EXPORT_MIN_PSNR_DB, "f16 PSNR {}", f16.fidelity.psnr_db);
+    assert!(
+        int8.fidelity.psnr_db >= ladder::INT8_EXPORT_MIN_PSNR_DB
+            && int8.fidelity.ssim >= ladder::INT8_EXPORT_MIN_SSIM,
+        "int8 {:?}",
+        int8.fidelity
+    );
+    assert_eq!((f16.fidelity.images, int8.fidelity.images), (64, 64));
 }
 
 #[test]

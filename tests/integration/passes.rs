@@ -3,7 +3,7 @@
 
 use genloom::npy::{self, NpyArray, NpyData};
 use genloom::{Generator, GeneratorOptions, LoadOptions, Model, PassOptions};
-use genloom_tests::{demo, golden, max_abs_diff};
+use genloom_tests::{demo, golden, ladder, max_abs_diff};
 use prost::Message;
 use tract_onnx::pb;
 
@@ -45,9 +45,9 @@ fn batchnorm_folding_is_exact() {
         assert!(m_off.info().passes.is_empty());
         let folded = m_on.info().passes.iter().find(|p| p.pass == "fold-batchnorm").expect("a BN fold");
         assert!(!folded.changes.is_empty());
-        assert!(max_abs_diff(&off, &want) <= 1e-5, "{}: unfolded", file.display());
+        assert!(max_abs_diff(&off, &want) <= ladder::EXACT_MAX_ABS, "{}: unfolded", file.display());
         assert!(
-            max_abs_diff(&on, &want) <= 1e-5,
+            max_abs_diff(&on, &want) <= ladder::EXACT_MAX_ABS,
             "{}: folded differs by {}",
             file.display(),
             max_abs_diff(&on, &want)
@@ -124,7 +124,11 @@ fn identity_and_constant_passes_are_exact() {
     );
     // The fp16 weights differ from the original f32 ones by their rounding, so judge the passes
     // by the unpassed run of the same file: exact up to float rounding.
-    assert!(max_abs_diff(&on, &off) <= 1e-6, "passes changed the output by {}", max_abs_diff(&on, &off));
+    assert!(
+        max_abs_diff(&on, &off) <= ladder::BITWISE_CLOSE_MAX_ABS,
+        "passes changed the output by {}",
+        max_abs_diff(&on, &off)
+    );
     assert_eq!(m.info().nodes_after_passes, 5, "only the original five ops remain");
 }
 
@@ -183,7 +187,11 @@ fn batchnorm_after_gemm_folds_and_after_relu_stays() {
     let (off, _) = run(&bytes, PassOptions::none(), &latents);
     let (on, m) = run(&bytes, PassOptions::default(), &latents);
     assert!(m.onnx().graph.as_ref().unwrap().node.iter().all(|n| n.op_type != "BatchNormalization"));
-    assert!(max_abs_diff(&on, &off) <= 1e-5, "Gemm fold differs by {}", max_abs_diff(&on, &off));
+    assert!(
+        max_abs_diff(&on, &off) <= ladder::EXACT_MAX_ABS,
+        "Gemm fold differs by {}",
+        max_abs_diff(&on, &off)
+    );
     // 2. BN after the Relu: nothing to fold into, so it stays and the output is unchanged.
     let mut p = decode(&golden("models/nchw-tanh.onnx"));
     let g = p.graph.as_mut().unwrap();
@@ -199,5 +207,5 @@ fn batchnorm_after_gemm_folds_and_after_relu_stays() {
         m.onnx().graph.as_ref().unwrap().node.iter().filter(|n| n.op_type == "BatchNormalization").count(),
         1
     );
-    assert!(max_abs_diff(&on, &off) <= 1e-6);
+    assert!(max_abs_diff(&on, &off) <= ladder::BITWISE_CLOSE_MAX_ABS);
 }

@@ -3,7 +3,7 @@
 
 use genloom::npy::{self, NpyArray, NpyData};
 use genloom::{Batch, Generator, GeneratorOptions, LabelKind, Latents, LoadOptions, Model};
-use genloom_tests::{golden, json, max_abs_diff};
+use genloom_tests::{golden, json, ladder, max_abs_diff};
 
 fn manifest() -> Vec<serde_json::Value> {
     json(&golden("models/manifest.json"))["models"].as_array().unwrap().clone()
@@ -120,7 +120,7 @@ fn outputs_match_the_onnx_reference_evaluator() {
             assert_eq!(images.data.len(), want.len(), "{name}");
             for (i, (a, b)) in images.data.iter().zip(&want).enumerate() {
                 assert!(
-                    (a - b).abs() <= 1e-4 * b.abs().max(1.0),
+                    (a - b).abs() <= ladder::F32_MAX_ABS * b.abs().max(1.0),
                     "{name} mb {mb}: value {i}: {a} vs reference {b}"
                 );
             }
@@ -147,13 +147,13 @@ fn image_i_does_not_depend_on_the_rest_of_the_request() {
         for mb in [1, 3, 4] {
             let part = generator(&model, mb, 2).generate(&latents, labels.as_deref()).unwrap();
             let d = max_abs_diff(&whole.data, &part.data);
-            assert!(d <= 1e-5, "{name}: micro-batch {mb} differs by {d}");
+            assert!(d <= ladder::EXACT_MAX_ABS, "{name}: micro-batch {mb} differs by {d}");
         }
         // Image 4 alone equals image 4 of the request.
         let one = latents.slice(4..5).unwrap();
         let l1 = labels.as_ref().map(|l| vec![l[4]]);
         let alone = generator(&model, 1, 1).generate(&one, l1.as_deref()).unwrap();
-        assert!(max_abs_diff(alone.image(0), whole.image(4)) <= 1e-5, "{name}");
+        assert!(max_abs_diff(alone.image(0), whole.image(4)) <= ladder::EXACT_MAX_ABS, "{name}");
     }
 }
 
@@ -187,7 +187,7 @@ fn fixed_batch_models_serve_any_count() {
     assert_eq!(all.count, 9);
     for i in [0, 4, 8] {
         let one = g.generate(&l.slice(i..i + 1).unwrap(), None).unwrap();
-        assert!(max_abs_diff(one.image(0), all.image(i)) <= 1e-5);
+        assert!(max_abs_diff(one.image(0), all.image(i)) <= ladder::EXACT_MAX_ABS);
     }
 }
 
@@ -261,7 +261,10 @@ fn f16_compute_stays_near_the_onnx_reference_evaluator() {
         assert_eq!(images.data.len(), want.len(), "{name}");
         let worst = max_abs_diff(&images.data, &want) / width;
         eprintln!("{name}: f16 compute max abs error {worst:.2e} of the range width");
-        assert!(worst <= 4e-3, "{name}: f16 compute is {worst} of the range width off the reference");
+        assert!(
+            worst <= ladder::F16_COMPUTE_MAX_ABS_OF_RANGE,
+            "{name}: f16 compute is {worst} of the range width off the reference"
+        );
         let f32_images = generator(&model, 2, 1).generate(&latents, labels.as_deref()).unwrap();
         assert_ne!(images.data, f32_images.data, "{name}: f16 compute gave the f32 result bit for bit");
         checked += 1;
