@@ -2,7 +2,7 @@
 //! turned into the runtime's types with an error in the runtime's words when it does not fit.
 
 use crate::render::invalid;
-use genloom::{Error, Result};
+use genloom::Result;
 use js_sys::{
     Array, ArrayBuffer, BigInt64Array, Float32Array, Int32Array, Object, Reflect, Uint8Array,
     Uint8ClampedArray,
@@ -44,7 +44,7 @@ pub fn describe(v: &JsValue) -> String {
 /// Bytes from a `Uint8Array`, a `Uint8ClampedArray` or an `ArrayBuffer`.
 ///
 /// # Errors
-/// [`Error::InvalidOption`] for anything else.
+/// [`genloom::Error::InvalidOption`] for anything else.
 pub fn bytes(option: &str, v: &JsValue) -> Result<Vec<u8>> {
     if let Some(a) = v.dyn_ref::<Uint8Array>() {
         Ok(a.to_vec())
@@ -60,7 +60,7 @@ pub fn bytes(option: &str, v: &JsValue) -> Result<Vec<u8>> {
 /// A seed: a `BigInt` in 0..2^64 (or a whole `Number` up to 2^53 - 1, which means the same).
 ///
 /// # Errors
-/// [`Error::InvalidOption`] for negative, fractional, too large or non-numeric values.
+/// [`genloom::Error::InvalidOption`] for negative, fractional, too large or non-numeric values.
 pub fn seed(option: &str, v: &JsValue) -> Result<u64> {
     let expected = "a BigInt from 0n to 18446744073709551615n (such as 7n)";
     if v.is_bigint() {
@@ -75,7 +75,7 @@ pub fn seed(option: &str, v: &JsValue) -> Result<u64> {
 /// A number (a JS `Number`).
 ///
 /// # Errors
-/// [`Error::InvalidOption`] when `v` is not a number.
+/// [`genloom::Error::InvalidOption`] when `v` is not a number.
 pub fn number(option: &str, v: &JsValue) -> Result<f64> {
     v.as_f64().ok_or_else(|| invalid(option, describe(v), "a number"))
 }
@@ -83,7 +83,7 @@ pub fn number(option: &str, v: &JsValue) -> Result<f64> {
 /// A boolean.
 ///
 /// # Errors
-/// [`Error::InvalidOption`] when `v` is not `true` or `false`.
+/// [`genloom::Error::InvalidOption`] when `v` is not `true` or `false`.
 pub fn boolean(option: &str, v: &JsValue) -> Result<bool> {
     v.as_bool().ok_or_else(|| invalid(option, describe(v), "`true` or `false`"))
 }
@@ -91,7 +91,7 @@ pub fn boolean(option: &str, v: &JsValue) -> Result<bool> {
 /// A string.
 ///
 /// # Errors
-/// [`Error::InvalidOption`] when `v` is not a string.
+/// [`genloom::Error::InvalidOption`] when `v` is not a string.
 pub fn string(option: &str, v: &JsValue) -> Result<String> {
     v.as_string().ok_or_else(|| invalid(option, describe(v), "a string"))
 }
@@ -99,7 +99,7 @@ pub fn string(option: &str, v: &JsValue) -> Result<String> {
 /// Latent values from a `Float32Array` or an array of numbers.
 ///
 /// # Errors
-/// [`Error::InvalidOption`] for anything else.
+/// [`genloom::Error::InvalidOption`] for anything else.
 pub fn floats(option: &str, v: &JsValue) -> Result<Vec<f32>> {
     if let Some(a) = v.dyn_ref::<Float32Array>() {
         return Ok(a.to_vec());
@@ -120,7 +120,7 @@ pub fn floats(option: &str, v: &JsValue) -> Result<Vec<f32>> {
 /// whole numbers or BigInts.
 ///
 /// # Errors
-/// [`Error::InvalidOption`] for anything else.
+/// [`genloom::Error::InvalidOption`] for anything else.
 pub fn labels(v: &JsValue) -> Result<Option<Vec<i64>>> {
     if v.is_undefined() || v.is_null() {
         return Ok(None);
@@ -163,7 +163,7 @@ impl Fields {
     /// misspelt option is an error, not silently ignored).
     ///
     /// # Errors
-    /// [`Error::InvalidOption`] when `v` is not an object or has an unknown field.
+    /// [`genloom::Error::InvalidOption`] when `v` is not an object or has an unknown field.
     pub fn new(what: &str, v: &JsValue, known: &[&str]) -> Result<Fields> {
         if v.is_undefined() || v.is_null() {
             return Ok(Fields { obj: None });
@@ -188,7 +188,7 @@ impl Fields {
     /// The value of field `name`, or `None` when absent, `undefined` or `null`.
     ///
     /// # Errors
-    /// [`Error::InvalidOption`] when reading the field throws (a getter that fails).
+    /// [`genloom::Error::InvalidOption`] when reading the field throws (a getter that fails).
     pub fn get(&self, name: &str) -> Result<Option<JsValue>> {
         let Some(obj) = &self.obj else { return Ok(None) };
         let v = Reflect::get(obj, &JsValue::from_str(name))
