@@ -567,15 +567,38 @@ pub fn convert_probe_f16(values: &[f32]) -> std::result::Result<Vec<u16>, f32> {
     to_f16(values)
 }
 
-/// Refuses two `what` ("models", "generators") whose outputs cannot be compared pixel for pixel.
+/// How two signatures differ in what a comparison needs, in words; empty when they agree.
+pub(crate) fn signature_differences(source: &crate::Signature, export: &crate::Signature) -> Vec<String> {
+    let mut v = vec![];
+    if source.latent.dim != export.latent.dim {
+        v.push(format!(
+            "latent size {} in the export, {} in the source",
+            export.latent.dim, source.latent.dim
+        ));
+    }
+    let classes = |s: &crate::Signature| s.label.as_ref().map(|l| l.classes);
+    if classes(source) != classes(export) {
+        let show = |c: Option<usize>| c.map(|k| format!("{k} classes")).unwrap_or_else(|| "no label".into());
+        v.push(format!("{} in the export, {} in the source", show(classes(export)), show(classes(source))));
+    }
+    let (a, b) = (&export.image, &source.image);
+    if (a.channels, a.height, a.width) != (b.channels, b.height, b.width) {
+        v.push(format!(
+            "image {}x{}x{} in the export, {}x{}x{} in the source",
+            a.channels, a.height, a.width, b.channels, b.height, b.width
+        ));
+    }
+    v
+}
+
+/// Refuses two `what` ("models", "generators") whose outputs cannot be compared pixel for pixel,
+/// naming how they differ.
 fn same_signature(what: &str, a: &crate::Signature, b: &crate::Signature) -> Result<()> {
-    if a.latent.dim != b.latent.dim
-        || a.image.values_per_image() != b.image.values_per_image()
-        || a.label.as_ref().map(|l| l.classes) != b.label.as_ref().map(|l| l.classes)
-    {
+    let differences = signature_differences(a, b);
+    if !differences.is_empty() {
         return Err(Error::invalid(
             format!("{what} to compare"),
-            format!("{what} with different signatures"),
+            format!("{what} with different signatures ({})", differences.join("; ")),
             "two exports of the same generator (same latent size, label classes and image size)",
         ));
     }

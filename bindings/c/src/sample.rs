@@ -29,7 +29,9 @@ pub unsafe extern "C" fn genloom_sample_options_new(
 ) -> genloom_status {
     boundary(|| {
         let out = Out::new(options, "options")?;
-        let handle = Box::into_raw(Box::new(genloom_sample_options { inner: SampleOptions::new(0, 1) }));
+        let handle = Box::into_raw(Box::new(genloom_sample_options {
+            inner: SampleOptions::new(genloom::DEFAULT_SEED, 1),
+        }));
         // SAFETY: `out` was checked and is writable by this function's contract.
         unsafe { out.write(handle) };
         Ok(())
@@ -257,7 +259,7 @@ pub unsafe extern "C" fn genloom_generator_sample(
         // SAFETY: NULL or live by this function's contract.
         let generator = unsafe { arg_ref(generator, "generator") }?;
         let mut o = if options.is_null() {
-            SampleOptions::new(0, count)
+            SampleOptions::new(genloom::DEFAULT_SEED, count)
         } else {
             // SAFETY: a live handle by this function's contract (NULL handled above).
             unsafe { arg_ref(options, "options") }?.inner.clone()

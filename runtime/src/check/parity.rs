@@ -4,7 +4,6 @@ use super::{CheckId, Ctx, Flow, Recorder, Status};
 use crate::error::Result;
 use crate::generate::Images;
 use crate::probe::ActivationReport;
-use crate::signature::Signature;
 
 pub(super) fn framework(c: &Ctx<'_>, r: &mut Recorder, _: &mut Option<ActivationReport>) -> Result<Flow> {
     let Some(reference) = &c.o.reference else {
@@ -67,37 +66,13 @@ fn ssim_words(ssim: f64) -> String {
     }
 }
 
-/// How two signatures differ in what a comparison needs, in words; empty when they agree.
-pub(super) fn signature_differences(source: &Signature, export: &Signature) -> Vec<String> {
-    let mut v = vec![];
-    if source.latent.dim != export.latent.dim {
-        v.push(format!(
-            "latent size {} in the export, {} in the source",
-            export.latent.dim, source.latent.dim
-        ));
-    }
-    let classes = |s: &Signature| s.label.as_ref().map(|l| l.classes);
-    if classes(source) != classes(export) {
-        let show = |c: Option<usize>| c.map(|k| format!("{k} classes")).unwrap_or_else(|| "no label".into());
-        v.push(format!("{} in the export, {} in the source", show(classes(export)), show(classes(source))));
-    }
-    let (a, b) = (&export.image, &source.image);
-    if (a.channels, a.height, a.width) != (b.channels, b.height, b.width) {
-        v.push(format!(
-            "image {}x{}x{} in the export, {}x{}x{} in the source",
-            a.channels, a.height, a.width, b.channels, b.height, b.width
-        ));
-    }
-    v
-}
-
 pub(super) fn export(c: &Ctx<'_>, r: &mut Recorder, _: &mut Option<ActivationReport>) -> Result<Flow> {
     let Some(source) = &c.o.against else {
         r.skip(CheckId::ParityExport, "no source model given to compare the export with");
         return Ok(Flow::Continue);
     };
     let threshold = format!("PSNR >= {} dB and SSIM >= {}", c.o.min_psnr, c.o.min_ssim);
-    let differences = signature_differences(source.signature(), &c.sig);
+    let differences = crate::convert::signature_differences(source.signature(), &c.sig);
     if !differences.is_empty() {
         r.add(
             CheckId::ParityExport,
