@@ -122,6 +122,19 @@ pub enum Error {
         /// What to do about it, starting with "; " (empty when there is nothing to add).
         hint: &'static str,
     },
+    /// A node's attribute (or constant shape input) breaks a rule of the ONNX operator
+    /// specification that tract relies on, or asks for something genloom cannot run.
+    #[error("node `{node}` ({op_type}): {attribute} {reason}")]
+    Attribute {
+        /// The node's name (or its position when it has none).
+        node: String,
+        /// Its operator.
+        op_type: String,
+        /// The attribute or input at fault.
+        attribute: String,
+        /// What is wrong and what was expected.
+        reason: String,
+    },
     /// tract refused or failed at a step.
     #[error("tract could not {action}: {source}")]
     Tract {
@@ -355,6 +368,7 @@ impl Error {
             | Error::TensorSize { .. }
             | Error::Graph { .. }
             | Error::UnsupportedOperator { .. }
+            | Error::Attribute { .. }
             | Error::Tract { stage: TractStage::Prepare, .. } => ErrorKind::Load,
             Error::Tract { stage: TractStage::Run, .. } | Error::Output { .. } => ErrorKind::Inference,
             Error::Signature { .. } | Error::RangeUnknown { .. } => ErrorKind::Signature,

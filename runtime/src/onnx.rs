@@ -299,6 +299,28 @@ pub(crate) fn element_count(t: &pb::TensorProto) -> Result<u64> {
     Ok(n)
 }
 
+/// Every tensor stored in the graph, read-only: initializers, Constant nodes' `value`
+/// attributes and the same inside subgraphs.
+pub(crate) fn for_each_tensor(
+    graph: &pb::GraphProto,
+    f: &mut dyn FnMut(&pb::TensorProto) -> Result<()>,
+) -> Result<()> {
+    for t in &graph.initializer {
+        f(t)?;
+    }
+    for n in &graph.node {
+        for a in &n.attribute {
+            if let Some(t) = a.t.as_ref() {
+                f(t)?;
+            }
+            if let Some(g) = a.g.as_ref() {
+                for_each_tensor(g, f)?;
+            }
+        }
+    }
+    Ok(())
+}
+
 /// Every tensor stored in the graph: initializers and Constant nodes' `value` attributes.
 pub(crate) fn for_each_tensor_mut(
     graph: &mut pb::GraphProto,
@@ -318,4 +340,51 @@ pub(crate) fn for_each_tensor_mut(
         }
     }
     Ok(())
+}
+
+/// tract's ONNX front end as genloom uses it everywhere: tract's operator register, with
+/// `Resize` also accepted in models whose opset predates it (below 10), where the
+/// `upsample-to-resize` pass writes it in place of `Upsample`. There it is built with the
+/// opset-10 semantics, inputs `(X, scales)` and asymmetric coordinates, which are the semantics
+/// of `Upsample` (ONNX operator specification: Resize-10 replaced Upsample-9 unchanged).
+pub(crate) fn framework() -> tract_onnx::Onnx {
+    let mut onnx = tract_onnx::onnx();
+    if let Some(&resize) = onnx.op_register.0.get("Resize") {
+        // A fn pointer cannot capture tract's builder; it is the same for every framework.
+        let _ = TRACT_RESIZE.set(resize);
+        onnx.op_register.insert("Resize", resize_any_opset);
+    }
+    onnx
+}
+
+type OpBuilder = fn(
+    &tract_onnx::model::ParsingContext,
+    &pb::NodeProto,
+) -> tract_onnx::prelude::TractResult<(
+    Box<dyn tract_onnx::tract_hir::infer::InferenceOp>,
+    Vec<String>,
+)>;
+
+static TRACT_RESIZE: std::sync::OnceLock<OpBuilder> = std::sync::OnceLock::new();
+
+fn resize_any_opset(
+    ctx: &tract_onnx::model::ParsingContext,
+    node: &pb::NodeProto,
+) -> tract_onnx::prelude::TractResult<(
+    Box<dyn tract_onnx::tract_hir::infer::InferenceOp>,
+    Vec<String>,
+)> {
+    let resize = TRACT_RESIZE.get().ok_or_else(|| tract_onnx::prelude::TractError::msg("Resize is not registered"))?;
+    if ctx.onnx_operator_set_version >= 10 {
+        return resize(ctx, node);
+    }
+    let ctx10 = tract_onnx::model::ParsingContext {
+        onnx_operator_set_version: 10,
+        framework: ctx.framework,
+        model: ctx.model,
+        parent_graphs: ctx.parent_graphs.clone(),
+        model_dir: ctx.model_dir,
+        template: ctx.template.clone(),
+    };
+    resize(&ctx10, node)
 }

@@ -113,7 +113,7 @@ pub(super) fn prescan(proto: &pb::ModelProto, r: &mut Recorder) -> bool {
         return false;
     };
     // Ask tract's own register (what this build carries), not a copied list.
-    let register = tract_onnx::onnx();
+    let register = crate::onnx::framework();
     let known = |op: &str| register.op_register.0.contains_key(op);
     let mut problems = vec![];
     for n in &g.node {

@@ -4,6 +4,7 @@
 //! data safely, checks the graph, parses it with tract, discovers the signature and reports what
 //! the model is made of ([`ModelInfo`]). A [`crate::Generator`] is built from a [`Model`].
 
+mod attributes;
 mod external;
 mod guard;
 mod limits;
@@ -11,6 +12,7 @@ mod sniffing;
 mod typing;
 mod validate;
 
+use attributes::check_attributes;
 use external::resolve_external_data;
 pub(crate) use guard::{guard, guard_run};
 pub(crate) use limits::check_limit;
@@ -20,7 +22,7 @@ use typing::build_typed;
 use validate::{check_graph, check_operators, check_tensors};
 
 use crate::error::{BoxError, Error, Result, TractStage};
-use crate::onnx::{dtype_name, elem_size, element_count, for_each_tensor_mut};
+use crate::onnx::{dtype_name, elem_size, element_count, for_each_tensor, for_each_tensor_mut};
 use crate::signature::{self, Signature, SignatureOverrides};
 use sha2::{Digest, Sha256};
 use std::collections::{BTreeMap, HashMap, HashSet};
@@ -140,7 +142,7 @@ impl Model {
     /// # Errors
     /// [`Error::EmptyModel`], [`Error::HtmlPage`], [`Error::LfsPointer`], [`Error::NotOnnx`] for
     /// bytes that are not an ONNX model; [`Error::ExternalDataNeedsPath`] when the model keeps
-    /// weights in another file; [`Error::Limit`]; [`Error::TensorSize`] and [`Error::Graph`] for
+    /// weights in another file; [`Error::Limit`]; [`Error::TensorSize`], [`Error::Graph`] and [`Error::Attribute`] for
     /// malformed models; [`Error::UnsupportedOperator`] for an operator this build does not
     /// carry; [`Error::Tract`] when tract cannot parse or type it; [`Error::Signature`]
     /// and [`Error::RangeUnknown`] when it does not look like a generator.

@@ -8,8 +8,7 @@ use super::*;
 pub(super) fn check_tensors(graph: &pb::GraphProto) -> Result<(u64, u64)> {
     let mut params = 0u64;
     let mut bytes = 0u64;
-    let mut g = graph.clone();
-    for_each_tensor_mut(&mut g, &mut |t| {
+    for_each_tensor(graph, &mut |t| {
         let n = element_count(t)?;
         let held = if !t.raw_data.is_empty() {
             let Some(size) = elem_size(t.data_type) else { return Ok(()) };

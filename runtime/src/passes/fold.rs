@@ -1,0 +1,181 @@
+//! `fold-constants`: nodes whose inputs are all constant, evaluated into initializers.
+
+use super::*;
+
+/// Evaluates one node whose inputs are all constant, if it is one of the ops we fold.
+fn eval_const(n: &pb::NodeProto, inputs: &[Option<&pb::TensorProto>]) -> Result<Option<pb::TensorProto>> {
+    let out = n.output.first().cloned().unwrap_or_default();
+    let first = match inputs.first() {
+        Some(Some(t)) => *t,
+        _ => return Ok(None),
+    };
+    let t = match n.op_type.as_str() {
+        "Identity" => {
+            let mut t = first.clone();
+            t.name = out;
+            t
+        }
+        "Cast" => {
+            let to = onnx::attr_i(n, "to", 0) as i32;
+            match to {
+                dt::FLOAT => onnx::f32_tensor(&out, &first.dims, &onnx::read_f32(first)?),
+                dt::INT64 if matches!(first.data_type, dt::INT32 | dt::INT64 | dt::INT8 | dt::UINT8) => {
+                    onnx::i64_tensor(&out, &first.dims, &onnx::read_i64(first)?)
+                }
+                _ => return Ok(None),
+            }
+        }
+        "DequantizeLinear" => {
+            let (Some(Some(scale)), zp) = (inputs.get(1), inputs.get(2).copied().flatten()) else {
+                return Ok(None);
+            };
+            if !matches!(first.data_type, dt::INT8 | dt::UINT8 | dt::INT32) {
+                return Ok(None);
+            }
+            let x = onnx::read_i64(first)?;
+            let s = onnx::read_f32(scale)?;
+            let z = match zp {
+                Some(z) => onnx::read_i64(z)?,
+                None => vec![0; s.len()],
+            };
+            if s.is_empty() || z.len() != s.len() {
+                return Ok(None);
+            }
+            // ONNX DequantizeLinear: y = (x - zero_point) * scale, per tensor or along `axis`.
+            let y: Vec<f32> = if s.len() == 1 {
+                x.iter().map(|&v| (v - z[0]) as f32 * s[0]).collect()
+            } else {
+                let rank = first.dims.len() as i64;
+                let axis = onnx::attr_i(n, "axis", 1);
+                let axis = if axis < 0 { axis + rank } else { axis } as usize;
+                if axis >= first.dims.len() || first.dims[axis] as usize != s.len() {
+                    return Err(Error::Graph {
+                        reason: format!(
+                            "DequantizeLinear `{}` has {} scales for axis {axis} of shape {:?}",
+                            n.name,
+                            s.len(),
+                            first.dims
+                        ),
+                    });
+                }
+                let inner: usize = first.dims[axis + 1..].iter().map(|&d| d as usize).product();
+                let ch = s.len();
+                x.iter()
+                    .enumerate()
+                    .map(|(i, &v)| {
+                        let c = (i / inner.max(1)) % ch;
+                        (v - z[c]) as f32 * s[c]
+                    })
+                    .collect()
+            };
+            onnx::f32_tensor(&out, &first.dims, &y)
+        }
+        "Reshape" | "Unsqueeze" | "Squeeze" => {
+            let dims = match n.op_type.as_str() {
+                "Reshape" => {
+                    let Some(Some(shape)) = inputs.get(1) else { return Ok(None) };
+                    let mut target = onnx::read_i64(shape)?;
+                    let total = onnx::numel(first) as i64;
+                    for (i, d) in target.iter_mut().enumerate() {
+                        if *d == 0 {
+                            *d = *first.dims.get(i).unwrap_or(&1);
+                        }
+                    }
+                    if let Some(pos) = target.iter().position(|&d| d == -1) {
+                        let known: i64 = target.iter().filter(|&&d| d != -1).product();
+                        if known == 0 {
+                            return Ok(None);
+                        }
+                        target[pos] = total / known;
+                    }
+                    target
+                }
+                _ => {
+                    let axes = match inputs.get(1) {
+                        Some(Some(a)) => onnx::read_i64(a)?,
+                        _ => onnx::attr_ints(n, "axes").unwrap_or_default(),
+                    };
+                    let mut dims = first.dims.clone();
+                    if n.op_type == "Unsqueeze" {
+                        let rank = (dims.len() + axes.len()) as i64;
+                        let mut axes: Vec<i64> =
+                            axes.iter().map(|&a| if a < 0 { a + rank } else { a }).collect();
+                        axes.sort_unstable();
+                        for a in axes {
+                            dims.insert((a as usize).min(dims.len()), 1);
+                        }
+                        dims
+                    } else {
+                        let rank = dims.len() as i64;
+                        let axes: Vec<i64> = axes.iter().map(|&a| if a < 0 { a + rank } else { a }).collect();
+                        dims.iter()
+                            .enumerate()
+                            .filter(|(i, &d)| !(d == 1 && (axes.is_empty() || axes.contains(&(*i as i64)))))
+                            .map(|(_, &d)| d)
+                            .collect()
+                    }
+                }
+            };
+            if dims.iter().product::<i64>() != onnx::numel(first) as i64 {
+                return Ok(None);
+            }
+            let mut t = first.clone();
+            t.name = out;
+            t.dims = dims;
+            t
+        }
+        _ => return Ok(None),
+    };
+    Ok(Some(t))
+}
+
+pub(super) fn fold_constants(g: &mut pb::GraphProto) -> Result<Vec<String>> {
+    let mut changes = vec![];
+    // Constant nodes become initializers.
+    let mut i = 0;
+    while i < g.node.len() {
+        let n = &g.node[i];
+        if n.op_type == "Constant" {
+            if let (Some(out), Some(t)) =
+                (n.output.first(), onnx::attr(n, "value").and_then(|a| a.t.as_ref()))
+            {
+                let mut t = t.clone();
+                t.name = out.clone();
+                if !is_graph_io(g, out) {
+                    changes.push(format!("Constant `{}` made an initializer", n.name));
+                    g.initializer.push(t);
+                    g.node.remove(i);
+                    continue;
+                }
+            }
+        }
+        i += 1;
+    }
+    loop {
+        let consts = onnx::constants(g);
+        let mut folded = None;
+        for (i, n) in g.node.iter().enumerate() {
+            if n.input.is_empty() || n.output.len() != 1 || is_graph_io(g, &n.output[0]) {
+                continue;
+            }
+            let inputs: Vec<Option<&pb::TensorProto>> = n
+                .input
+                .iter()
+                .map(|s| if s.is_empty() { None } else { consts.get(s.as_str()).copied() })
+                .collect();
+            let all_const = n.input.iter().zip(&inputs).all(|(s, t)| s.is_empty() || t.is_some());
+            if !all_const {
+                continue;
+            }
+            if let Some(t) = eval_const(n, &inputs)? {
+                folded = Some((i, t));
+                break;
+            }
+        }
+        let Some((i, t)) = folded else { break };
+        let n = g.node.remove(i);
+        changes.push(format!("{} `{}` evaluated into a {:?} constant", n.op_type, n.name, t.dims));
+        g.initializer.push(t);
+    }
+    Ok(changes)
+}
