@@ -28,6 +28,7 @@ pub mod demo;
 pub mod error;
 pub mod files;
 pub mod generate;
+mod guard;
 pub mod latent;
 pub mod metrics;
 pub mod model;

@@ -370,11 +370,9 @@ static TRACT_RESIZE: std::sync::OnceLock<OpBuilder> = std::sync::OnceLock::new()
 fn resize_any_opset(
     ctx: &tract_onnx::model::ParsingContext,
     node: &pb::NodeProto,
-) -> tract_onnx::prelude::TractResult<(
-    Box<dyn tract_onnx::tract_hir::infer::InferenceOp>,
-    Vec<String>,
-)> {
-    let resize = TRACT_RESIZE.get().ok_or_else(|| tract_onnx::prelude::TractError::msg("Resize is not registered"))?;
+) -> tract_onnx::prelude::TractResult<(Box<dyn tract_onnx::tract_hir::infer::InferenceOp>, Vec<String>)> {
+    let resize =
+        TRACT_RESIZE.get().ok_or_else(|| tract_onnx::prelude::TractError::msg("Resize is not registered"))?;
     if ctx.onnx_operator_set_version >= 10 {
         return resize(ctx, node);
     }

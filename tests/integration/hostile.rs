@@ -110,7 +110,10 @@ fn fuzz_find_convtranspose_padding_overflow_is_an_error() {
         Ok(Ok(())) => panic!("the fuzz find loaded and generated; expected its zero stride to be refused"),
         Ok(Err(e)) => {
             assert!(matches!(e, genloom::Error::Attribute { .. }), "{e:?}");
-            assert_eq!(e.to_string(), "node `up2` (ConvTranspose): strides holds 0 in [0, 2]; expected values from 1 to 2147483647");
+            assert_eq!(
+                e.to_string(),
+                "node `up2` (ConvTranspose): strides holds 0 in [0, 2]; expected values from 1 to 2147483647"
+            );
         }
     }
 }

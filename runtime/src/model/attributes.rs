@@ -128,7 +128,9 @@ fn check_window(
     };
     // With a non-constant weight and no kernel_shape, the lists must at least agree.
     let rank = rank
-        .or_else(|| ["strides", "dilations", "output_padding"].iter().find_map(|a| attr(n, a).map(|a| a.ints.len())))
+        .or_else(|| {
+            ["strides", "dilations", "output_padding"].iter().find_map(|a| attr(n, a).map(|a| a.ints.len()))
+        })
         .or_else(|| attr(n, "pads").map(|a| a.ints.len() / 2));
     let Some(rank) = rank else { return Ok(()) };
     if rank == 0 || rank > 3 {
@@ -143,14 +145,20 @@ fn check_window(
             ));
         }
         if let Some(v) = a.ints.iter().find(|&&v| v < min || v > MAX_DIM) {
-            return Err(fail(name, format!("holds {v} in {:?}; expected values from {min} to {MAX_DIM}", a.ints)));
+            return Err(fail(
+                name,
+                format!("holds {v} in {:?}; expected values from {min} to {MAX_DIM}", a.ints),
+            ));
         }
         Ok(Some(a.ints.clone()))
     };
     let kernel = list("kernel_shape", rank, 1)?;
     if let (Some(k), Some(w)) = (&kernel, weight) {
         if k[..] != w.dims[2..] {
-            return Err(fail("kernel_shape", format!("is {k:?} but the weight's window is {:?}", &w.dims[2..])));
+            return Err(fail(
+                "kernel_shape",
+                format!("is {k:?} but the weight's window is {:?}", &w.dims[2..]),
+            ));
         }
     }
     list("strides", rank, 1)?;
@@ -161,7 +169,10 @@ fn check_window(
     if let Some(a) = attr(n, "auto_pad") {
         let v = String::from_utf8_lossy(&a.s);
         if !["NOTSET", "SAME_UPPER", "SAME_LOWER", "VALID", ""].contains(&v.as_ref()) {
-            return Err(fail("auto_pad", format!("is `{v}`; expected NOTSET, SAME_UPPER, SAME_LOWER or VALID")));
+            return Err(fail(
+                "auto_pad",
+                format!("is `{v}`; expected NOTSET, SAME_UPPER, SAME_LOWER or VALID"),
+            ));
         }
     }
     if let Some(a) = attr(n, "group") {
@@ -171,13 +182,19 @@ fn check_window(
         if let Some(w) = weight.filter(|_| n.op_type == "Conv") {
             // Conv: W is [M, C/group, ...] and M must be a multiple of group.
             if w.dims[0] % a.i != 0 {
-                return Err(fail("group", format!("is {} but the weight has {} output channels", a.i, w.dims[0])));
+                return Err(fail(
+                    "group",
+                    format!("is {} but the weight has {} output channels", a.i, w.dims[0]),
+                ));
             }
         }
         if let Some(w) = weight.filter(|_| n.op_type == "ConvTranspose") {
             // ConvTranspose: W is [C, M/group, ...] and C must be a multiple of group.
             if w.dims[0] % a.i != 0 {
-                return Err(fail("group", format!("is {} but the weight has {} input channels", a.i, w.dims[0])));
+                return Err(fail(
+                    "group",
+                    format!("is {} but the weight has {} input channels", a.i, w.dims[0]),
+                ));
             }
         }
     }
@@ -196,7 +213,10 @@ fn check_resize(
         if allowed.contains(&value) {
             Ok(())
         } else {
-            Err(fail(name, format!("is `{value}`, which genloom cannot run; supported: {}", allowed.join(", "))))
+            Err(fail(
+                name,
+                format!("is `{value}`, which genloom cannot run; supported: {}", allowed.join(", ")),
+            ))
         }
     };
     let mode = text("mode").unwrap_or_else(|| "nearest".into());
@@ -216,13 +236,16 @@ fn check_resize(
         one_of("nearest_mode", &nearest, RESIZE_NEAREST)?;
     }
     let scales_input = if n.op_type == "Upsample" { 1 } else { 2 };
-    let scales = attr(n, "scales")
-        .filter(|_| n.op_type == "Upsample")
-        .map(|a| a.floats.clone())
-        .or_else(|| n.input.get(scales_input).and_then(|s| consts.get(s.as_str())).and_then(|t| read_f32(t).ok()));
+    let scales =
+        attr(n, "scales").filter(|_| n.op_type == "Upsample").map(|a| a.floats.clone()).or_else(|| {
+            n.input.get(scales_input).and_then(|s| consts.get(s.as_str())).and_then(|t| read_f32(t).ok())
+        });
     if let Some(s) = scales {
         if let Some(v) = s.iter().find(|v| !v.is_finite() || **v <= 0.0 || **v > 65536.0) {
-            return Err(fail("scales", format!("holds {v} in {s:?}; expected finite factors above 0 and at most 65536")));
+            return Err(fail(
+                "scales",
+                format!("holds {v} in {s:?}; expected finite factors above 0 and at most 65536"),
+            ));
         }
     }
     if n.op_type == "Resize" {
@@ -244,7 +267,12 @@ mod tests {
         pb::AttributeProto { name: name.into(), r#type: 3, s: v.as_bytes().to_vec(), ..Default::default() }
     }
 
-    fn graph(op: &str, inputs: &[&str], attrs: Vec<pb::AttributeProto>, inits: Vec<pb::TensorProto>) -> pb::GraphProto {
+    fn graph(
+        op: &str,
+        inputs: &[&str],
+        attrs: Vec<pb::AttributeProto>,
+        inits: Vec<pb::TensorProto>,
+    ) -> pb::GraphProto {
         pb::GraphProto {
             node: vec![pb::NodeProto {
                 name: "n0".into(),
@@ -299,7 +327,12 @@ mod tests {
         assert_eq!(attribute_of(check_attributes(&g).unwrap_err()), "pads");
         let g = graph("ConvTranspose", &["x", "w"], vec![ints("pads", &[1, 1, 1, 1])], w());
         check_attributes(&g).unwrap();
-        let g = graph("Conv", &["x", "w"], vec![pb::AttributeProto { name: "group".into(), i: 3, r#type: 2, ..Default::default() }], w());
+        let g = graph(
+            "Conv",
+            &["x", "w"],
+            vec![pb::AttributeProto { name: "group".into(), i: 3, r#type: 2, ..Default::default() }],
+            w(),
+        );
         assert_eq!(attribute_of(check_attributes(&g).unwrap_err()), "group");
         let g = graph("MaxPool", &["x"], vec![], vec![]);
         assert_eq!(attribute_of(check_attributes(&g).unwrap_err()), "kernel_shape");
@@ -324,13 +357,26 @@ mod tests {
 
     #[test]
     fn resize_modes_tract_lacks_are_named() {
-        let g = graph("Resize", &["x", "", "sc"], vec![text("mode", "nearest")], vec![f32_tensor("sc", &[4], &[1.0, 1.0, 2.0, 2.0])]);
-        let e = check_attributes(&g).unwrap_err();
-        assert!(e.to_string().contains("round_prefer_floor") && e.to_string().contains("floor, round_prefer_ceil"), "{e}");
         let g = graph(
             "Resize",
             &["x", "", "sc"],
-            vec![text("mode", "nearest"), text("nearest_mode", "floor"), text("coordinate_transformation_mode", "asymmetric")],
+            vec![text("mode", "nearest")],
+            vec![f32_tensor("sc", &[4], &[1.0, 1.0, 2.0, 2.0])],
+        );
+        let e = check_attributes(&g).unwrap_err();
+        assert!(
+            e.to_string().contains("round_prefer_floor")
+                && e.to_string().contains("floor, round_prefer_ceil"),
+            "{e}"
+        );
+        let g = graph(
+            "Resize",
+            &["x", "", "sc"],
+            vec![
+                text("mode", "nearest"),
+                text("nearest_mode", "floor"),
+                text("coordinate_transformation_mode", "asymmetric"),
+            ],
             vec![f32_tensor("sc", &[4], &[1.0, 1.0, 2.0, 2.0])],
         );
         check_attributes(&g).unwrap();

@@ -6,22 +6,21 @@
 
 mod attributes;
 mod external;
-mod guard;
 mod limits;
 mod sniffing;
 mod typing;
 mod validate;
 
+pub(crate) use crate::guard::{guard, guard_run};
 use attributes::check_attributes;
 use external::resolve_external_data;
-pub(crate) use guard::{guard, guard_run};
 pub(crate) use limits::check_limit;
 pub use limits::Limits;
 use sniffing::{decode, hex, sniff};
 use typing::build_typed;
 use validate::{check_graph, check_operators, check_tensors};
 
-use crate::error::{BoxError, Error, Result, TractStage};
+use crate::error::{Error, Result};
 use crate::onnx::{dtype_name, elem_size, element_count, for_each_tensor, for_each_tensor_mut};
 use crate::signature::{self, Signature, SignatureOverrides};
 use sha2::{Digest, Sha256};

@@ -1,6 +1,8 @@
 //! `fold-constants`: nodes whose inputs are all constant, evaluated into initializers.
 
+use super::evaluate::evaluate;
 use super::*;
+use std::collections::HashSet;
 
 /// Evaluates one node whose inputs are all constant, if it is one of the ops we fold.
 fn eval_const(n: &pb::NodeProto, inputs: &[Option<&pb::TensorProto>]) -> Result<Option<pb::TensorProto>> {
@@ -129,7 +131,10 @@ fn eval_const(n: &pb::NodeProto, inputs: &[Option<&pb::TensorProto>]) -> Result<
     Ok(Some(t))
 }
 
-pub(super) fn fold_constants(g: &mut pb::GraphProto) -> Result<Vec<String>> {
+pub(super) fn fold_constants(
+    g: &mut pb::GraphProto,
+    opsets: &[pb::OperatorSetIdProto],
+) -> Result<Vec<String>> {
     let mut changes = vec![];
     // Constant nodes become initializers.
     let mut i = 0;
@@ -151,31 +156,68 @@ pub(super) fn fold_constants(g: &mut pb::GraphProto) -> Result<Vec<String>> {
         }
         i += 1;
     }
+    // Every node whose inputs are all constant, in graph order, until nothing more folds: by
+    // genloom's own evaluator where it covers the node, else by tract on the node alone.
+    let mut failed: HashSet<usize> = HashSet::new();
     loop {
-        let consts = onnx::constants(g);
-        let mut folded = None;
-        for (i, n) in g.node.iter().enumerate() {
-            if n.input.is_empty() || n.output.len() != 1 || is_graph_io(g, &n.output[0]) {
-                continue;
-            }
-            let inputs: Vec<Option<&pb::TensorProto>> = n
-                .input
-                .iter()
-                .map(|s| if s.is_empty() { None } else { consts.get(s.as_str()).copied() })
-                .collect();
-            let all_const = n.input.iter().zip(&inputs).all(|(s, t)| s.is_empty() || t.is_some());
-            if !all_const {
-                continue;
-            }
-            if let Some(t) = eval_const(n, &inputs)? {
-                folded = Some((i, t));
-                break;
+        let mut folded: HashMap<String, pb::TensorProto> = HashMap::new();
+        let mut done: Vec<usize> = vec![];
+        {
+            let consts = onnx::constants(g);
+            for (i, n) in g.node.iter().enumerate() {
+                if failed.contains(&i)
+                    || n.input.is_empty()
+                    || n.output.is_empty()
+                    || n.output.iter().any(|o| is_graph_io(g, o))
+                {
+                    continue;
+                }
+                let out = {
+                    let inputs: Vec<Option<&pb::TensorProto>> = n
+                        .input
+                        .iter()
+                        .map(|s| {
+                            if s.is_empty() {
+                                None
+                            } else {
+                                folded.get(s).or_else(|| consts.get(s.as_str()).copied())
+                            }
+                        })
+                        .collect();
+                    let all_const = n.input.iter().zip(&inputs).all(|(s, t)| s.is_empty() || t.is_some());
+                    if !all_const {
+                        continue;
+                    }
+                    let own =
+                        if n.output.len() == 1 { eval_const(n, &inputs)?.map(|t| vec![t]) } else { None };
+                    match own {
+                        Some(t) => Some(t),
+                        None => evaluate(n, &inputs, opsets)?,
+                    }
+                };
+                let Some(out) = out else {
+                    failed.insert(i);
+                    continue;
+                };
+                let shapes: Vec<Vec<i64>> = out.iter().map(|t| t.dims.clone()).collect();
+                let shapes =
+                    if shapes.len() == 1 { format!("{:?}", shapes[0]) } else { format!("{shapes:?}") };
+                changes.push(format!("{} `{}` evaluated into a {shapes} constant", n.op_type, n.name));
+                for t in out {
+                    folded.insert(t.name.clone(), t);
+                }
+                done.push(i);
             }
         }
-        let Some((i, t)) = folded else { break };
-        let n = g.node.remove(i);
-        changes.push(format!("{} `{}` evaluated into a {:?} constant", n.op_type, n.name, t.dims));
-        g.initializer.push(t);
+        if done.is_empty() {
+            break;
+        }
+        // Indices shift as nodes go: forget the failures (few) and retry them once more.
+        failed.clear();
+        for &i in done.iter().rev() {
+            g.node.remove(i);
+        }
+        g.initializer.extend(folded.into_values());
     }
     Ok(changes)
 }

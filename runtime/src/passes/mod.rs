@@ -4,16 +4,22 @@
 //! ([`PassOptions`]):
 //! - `drop-identity`: removes `Identity`, inference-form `Dropout` (no mask read, training mode
 //!   absent or false) and `Reshape` to the shape its input already has;
-//! - `fold-constants`: evaluates nodes whose inputs are all constant (`Constant`, `Cast`,
-//!   `DequantizeLinear`, `Reshape`, `Unsqueeze`, `Squeeze`, `Identity`) into initializers, of any
-//!   size (tract's own folder skips tensors over 4 MiB, which would leave fp16 and int8 weights
-//!   to be converted on every call);
+//! - `fold-constants`: evaluates every node whose inputs are all constant into initializers,
+//!   whatever its operator, so tract never sees a constant subgraph (a spectral-norm power
+//!   iteration, a weight scale, a demodulation factor of weights): genloom's own evaluator for
+//!   `Cast`, `DequantizeLinear`, `Reshape`, `Unsqueeze`, `Squeeze`, `Identity` and `MatMul` of
+//!   vectors (numpy.matmul semantics, which tract's MatMul lacks when both operands are 1-D),
+//!   tract on the node alone for the rest. Random operators are never folded, and results are
+//!   bounded in size (tract's own folder skips tensors over 4 MiB, which would leave fp16 and
+//!   int8 weights to be converted on every call);
 //! - `fold-batchnorm`: folds an inference-form `BatchNormalization` into the `Conv`,
 //!   `ConvTranspose` (output channels on weight axis 1), `Gemm` or `MatMul` before it:
 //!   with `s = gamma / sqrt(var + eps)` and `t = beta - mean s`, the weights of output channel `c`
 //!   are scaled by `s_c` and the bias becomes `b s + t` (created when the layer had none). This
 //!   is the pattern PyTorch's legacy exporter leaves and tract runs as separate Mul/Add at batch > 1.
 //!
+//! - `einsum`: `Einsum` of one or two operands written exactly as `Transpose`, `Unsqueeze`,
+//!   `Mul` and `ReduceSum` (a constant one is then folded like any other node);
 //! - `upsample-to-resize`: `Upsample` (opsets 7 to 9) written as the equivalent `Resize`;
 //! - `resize-modes`: `Resize` nodes that do not interpolate by nearest neighbour given the
 //!   (unused) `nearest_mode` tract's parser needs.
@@ -22,11 +28,14 @@
 //! already folded.
 
 mod batchnorm;
+mod einsum;
+mod evaluate;
 mod fold;
 mod identity;
 mod resize;
 
 use batchnorm::fold_batchnorm;
+use einsum::rewrite_einsum;
 use fold::fold_constants;
 use identity::drop_identity;
 use resize::{resize_modes, upsample_to_resize};
@@ -46,6 +55,8 @@ pub struct PassOptions {
     pub fold_constants: bool,
     /// Fold BatchNormalization into the layer before it.
     pub fold_batchnorm: bool,
+    /// Write `Einsum` of one or two operands as Transpose, Unsqueeze, Mul and ReduceSum.
+    pub einsum: bool,
     /// Write `Upsample` as `Resize` and complete `Resize` attributes (needed to run opset-9
     /// resampling).
     pub resample: bool,
@@ -53,14 +64,26 @@ pub struct PassOptions {
 
 impl Default for PassOptions {
     fn default() -> Self {
-        PassOptions { drop_identity: true, fold_constants: true, fold_batchnorm: true, resample: true }
+        PassOptions {
+            drop_identity: true,
+            fold_constants: true,
+            fold_batchnorm: true,
+            einsum: true,
+            resample: true,
+        }
     }
 }
 
 impl PassOptions {
     /// Every pass off: the graph as exported.
     pub fn none() -> PassOptions {
-        PassOptions { drop_identity: false, fold_constants: false, fold_batchnorm: false, resample: false }
+        PassOptions {
+            drop_identity: false,
+            fold_constants: false,
+            fold_batchnorm: false,
+            einsum: false,
+            resample: false,
+        }
     }
 }
 
@@ -89,6 +112,7 @@ pub fn run(model: &mut pb::ModelProto, options: &PassOptions) -> Result<Vec<Pass
         .find(|o| o.domain.is_empty() || o.domain == "ai.onnx")
         .map(|o| o.version)
         .unwrap_or(0);
+    let opsets = model.opset_import.clone();
     let Some(g) = model.graph.as_mut() else { return Ok(vec![]) };
     let mut report = vec![];
     let mut step = |name: &str,
@@ -115,8 +139,11 @@ pub fn run(model: &mut pb::ModelProto, options: &PassOptions) -> Result<Vec<Pass
     if options.drop_identity {
         step("drop-identity", g, &drop_identity)?;
     }
+    if options.einsum {
+        step("einsum", g, &|g| rewrite_einsum(g, opset))?;
+    }
     if options.fold_constants {
-        step("fold-constants", g, &fold_constants)?;
+        step("fold-constants", g, &|g| fold_constants(g, &opsets))?;
     }
     if options.fold_batchnorm {
         step("fold-batchnorm", g, &fold_batchnorm)?;

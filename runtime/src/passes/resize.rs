@@ -32,7 +32,8 @@ pub(super) fn upsample_to_resize(g: &mut pb::GraphProto, opset: i64) -> Result<V
     let mut changes = vec![];
     let mut names = Names::of(g);
     for i in 0..g.node.len() {
-        if g.node[i].op_type != "Upsample" || !(g.node[i].domain.is_empty() || g.node[i].domain == "ai.onnx") {
+        if g.node[i].op_type != "Upsample" || !(g.node[i].domain.is_empty() || g.node[i].domain == "ai.onnx")
+        {
             continue;
         }
         let n = &g.node[i];
@@ -44,7 +45,8 @@ pub(super) fn upsample_to_resize(g: &mut pb::GraphProto, opset: i64) -> Result<V
         let scales = match (n.input.get(1).filter(|s| !s.is_empty()), onnx::attr(n, "scales")) {
             (Some(s), _) => s.clone(),
             (None, Some(a)) if !a.floats.is_empty() => {
-                let name = names.fresh(&format!("{}_scales", if n.name.is_empty() { "upsample" } else { &n.name }));
+                let name =
+                    names.fresh(&format!("{}_scales", if n.name.is_empty() { "upsample" } else { &n.name }));
                 let t = onnx::f32_tensor(&name, &[a.floats.len() as i64], &a.floats);
                 g.initializer.push(t);
                 name
@@ -109,7 +111,12 @@ mod tests {
 
     #[test]
     fn opset7_scales_attribute_becomes_an_initializer() {
-        let scales = pb::AttributeProto { name: "scales".into(), r#type: 6, floats: vec![1.0, 1.0, 3.0, 3.0], ..Default::default() };
+        let scales = pb::AttributeProto {
+            name: "scales".into(),
+            r#type: 6,
+            floats: vec![1.0, 1.0, 3.0, 3.0],
+            ..Default::default()
+        };
         let mut g = upsample(&["x"], vec![scales]);
         upsample_to_resize(&mut g, 7).unwrap();
         let n = &g.node[0];

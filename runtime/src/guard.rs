@@ -1,7 +1,8 @@
 //! The tract panic guard: every tract call runs inside it, so a model that reaches an
 //! unimplemented path in tract gives an error, never a crash of the host application.
 
-use super::*;
+use crate::error::{BoxError, Error, Result, TractStage};
+use tract_onnx::prelude::TractResult;
 
 /// Runs a tract step, turning both its errors and its panics into [`Error::Tract`]: tract is a
 /// large engine, and a model that reaches an unimplemented path in it must not take the host
@@ -15,7 +16,7 @@ pub(crate) fn guard_run<T>(action: impl Into<String>, f: impl FnOnce() -> TractR
     guard_stage(TractStage::Run, action, f)
 }
 
-pub(super) fn guard_stage<T>(
+fn guard_stage<T>(
     stage: TractStage,
     action: impl Into<String>,
     f: impl FnOnce() -> TractResult<T>,
