@@ -222,6 +222,19 @@ impl Generator {
         }
     }
 
+    /// The batch a plan runs for `n` images: `n`, or the export's fixed batch.
+    pub(crate) fn signature_batch(&self, n: usize) -> usize {
+        match self.signature().batch {
+            Batch::Fixed(b) => b,
+            Batch::Symbolic => n,
+        }
+    }
+
+    /// The plan for `batch` images (built and cached on first use).
+    pub(crate) fn plans_for(&self, batch: usize) -> Result<crate::plan::Runnable> {
+        self.plans.plan_for(batch)
+    }
+
     /// Loads a model from a path with default options and builds its generator.
     ///
     /// # Errors

@@ -22,6 +22,8 @@
 //! ```
 #![forbid(unsafe_code)]
 
+#[cfg(not(target_arch = "wasm32"))]
+pub mod bench;
 pub mod check;
 pub mod convert;
 pub mod demo;

@@ -2,7 +2,7 @@
 
 use crate::common::{out, out_json, usage, CliResult, SignatureArgs};
 use clap::Args;
-use genloom::{Generator, GeneratorOptions, LoadOptions, Model, SampleOptions};
+use genloom::{Generator, GeneratorOptions, LoadOptions, Model};
 use std::path::PathBuf;
 use std::time::Instant;
 
@@ -32,6 +32,13 @@ pub struct BenchArgs {
     /// Compute in f16 (convolutions stay f32), to see its speed and memory against f32 compute.
     #[arg(long)]
     pub f16_compute: bool,
+    /// Also time every node of the batch-1 plan: time per operator type and the ten costliest
+    /// nodes.
+    #[arg(long)]
+    pub profile: bool,
+    /// Timed runs for --profile (after one untimed run).
+    #[arg(long, default_value_t = 20, value_name = "N")]
+    pub profile_runs: usize,
     /// Print JSON.
     #[arg(long)]
     pub json: bool,
@@ -42,20 +49,15 @@ struct Row {
     model: String,
     file_bytes: u64,
     load_ms: f64,
-    optimise_ms: f64,
-    batch1_p50_ms: f64,
-    batch1_p90_ms: f64,
-    best_micro_batch: usize,
-    best_p50_ms_per_image: f64,
-    best_p90_ms_per_image: f64,
-    throughput: Vec<(usize, f64)>,
+    #[serde(flatten)]
+    measured: genloom::bench::Measurement,
     macs_per_image: Option<u64>,
     best_gmacs_per_s: Option<f64>,
     peak_heap_load_bytes: usize,
-    steady_heap_bytes: usize,
-    peak_heap_generate_bytes: usize,
     resident_bytes: Option<u64>,
     psnr_vs_first_db: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    profile: Option<genloom::bench::Profile>,
 }
 
 #[derive(serde::Serialize)]
@@ -67,9 +69,19 @@ struct Report {
     rows: Vec<Row>,
 }
 
-fn percentile(v: &mut [f64], p: f64) -> f64 {
-    v.sort_by(f64::total_cmp);
-    v[((v.len() - 1) as f64 * p).round() as usize]
+/// The counting allocator of the `genloom` program, as the runtime's heap meter.
+struct Meter<'a>(&'a peak_alloc::PeakAlloc);
+
+impl genloom::bench::HeapMeter for Meter<'_> {
+    fn current(&self) -> usize {
+        self.0.current_usage()
+    }
+    fn peak(&self) -> usize {
+        self.0.peak_usage()
+    }
+    fn reset_peak(&self) {
+        self.0.reset_peak_usage()
+    }
 }
 
 fn resident() -> Option<u64> {
@@ -79,22 +91,19 @@ fn resident() -> Option<u64> {
 }
 
 pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
-    if a.iters == 0 || a.count == 0 || a.micro_batch.is_empty() || a.micro_batch.contains(&0) {
-        return Err(usage("--iters, --count and every --micro-batch must be at least 1"));
+    let mut options = genloom::bench::BenchOptions::default();
+    options.micro_batches = a.micro_batch.clone();
+    if !a.threads.is_empty() {
+        options.threads = a.threads.clone();
     }
-    if a.threads.contains(&0) {
-        return Err(usage("every --threads value must be at least 1"));
+    options.iters = a.iters;
+    options.count = a.count;
+    options.f16_compute = a.f16_compute;
+    options.validate().map_err(|e| usage(&e.to_string()))?;
+    if a.profile_runs == 0 {
+        return Err(usage("--profile-runs must be at least 1"));
     }
     let cores = std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1);
-    let threads: Vec<usize> = if a.threads.is_empty() {
-        if cores > 1 {
-            vec![1, cores]
-        } else {
-            vec![1]
-        }
-    } else {
-        a.threads.clone()
-    };
     let mut load = LoadOptions::with_overrides(a.signature.overrides()?);
     if a.no_passes {
         load.passes = genloom::PassOptions::none();
@@ -103,6 +112,7 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
         if a.models.is_empty() { vec![None] } else { a.models.iter().cloned().map(Some).collect() };
     let mut rows = vec![];
     let mut first: Option<Model> = None;
+    let meter = Meter(alloc);
     for name in &names {
         let label = name.as_ref().map(|p| p.display().to_string()).unwrap_or_else(|| "built-in tiles".into());
         eprintln!("measuring {label} ...");
@@ -118,90 +128,30 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
             error: anyhow::Error::new(e).context(format!("cannot load {label}")),
         })?;
         let load_ms = t.elapsed().as_secs_f64() * 1e3;
-        let t = Instant::now();
+        let peak_load = alloc.peak_usage().saturating_sub(before);
+        let measured = genloom::bench::measure(&model, &options, &meter, &mut |step| eprintln!("  {step}"))?;
         let mut o = GeneratorOptions::default();
         o.f16_compute = a.f16_compute;
-        o.micro_batch = 1;
-        let g1 = Generator::new(model.clone(), o)?;
-        let optimise_ms = t.elapsed().as_secs_f64() * 1e3;
-        let peak_load = alloc.peak_usage().saturating_sub(before);
-        let steady = alloc.current_usage().saturating_sub(before);
-        let sig = model.signature().clone();
-        let labels_of = |n: usize| sig.cycle_labels(n);
-        // Batch-1 latency.
-        let one = g1.sample_latents(&SampleOptions::new(3, 1))?;
-        let l1 = labels_of(1);
-        for _ in 0..5 {
-            g1.generate(&one, l1.as_deref())?;
-        }
-        let mut times: Vec<f64> = (0..a.iters)
-            .map(|_| {
-                let t = Instant::now();
-                let r = g1.generate(&one, l1.as_deref());
-                (r, t.elapsed().as_secs_f64() * 1e3)
-            })
-            .map(|(r, ms)| r.map(|_| ms))
-            .collect::<Result<_, _>>()?;
-        let (b1_50, b1_90) = (percentile(&mut times, 0.5), percentile(&mut times, 0.9));
-        // Best micro-batch by median per-image time.
-        let mut best = (f64::INFINITY, 0.0, 1usize);
-        let mut peak_gen = 0usize;
-        for &mb in &a.micro_batch {
-            let mut o = GeneratorOptions::default();
-            o.f16_compute = a.f16_compute;
-            o.micro_batch = mb;
-            let g = Generator::new(model.clone(), o)?;
-            let z = g.sample_latents(&SampleOptions::new(4, mb))?;
-            let lab = labels_of(mb);
-            g.generate(&z, lab.as_deref())?;
-            alloc.reset_peak_usage();
-            let base = alloc.current_usage();
-            let iters = (a.iters / mb).max(5);
-            let mut t: Vec<f64> = vec![];
-            for _ in 0..iters {
-                let s = Instant::now();
-                g.generate(&z, lab.as_deref())?;
-                t.push(s.elapsed().as_secs_f64() * 1e3 / mb as f64);
-            }
-            peak_gen = peak_gen.max(alloc.peak_usage().saturating_sub(base));
-            let (p50, p90) = (percentile(&mut t, 0.5), percentile(&mut t, 0.9));
-            if p50 < best.0 {
-                best = (p50, p90, mb);
-            }
-        }
-        // Throughput per thread count at the best micro-batch.
-        let z = g1.sample_latents(&SampleOptions::new(5, a.count))?;
-        let lab = labels_of(a.count);
-        let mut throughput = vec![];
-        for &th in &threads {
-            let mut o = GeneratorOptions::default();
-            o.f16_compute = a.f16_compute;
-            o.micro_batch = best.2;
-            o.threads = th;
-            let g = Generator::new(model.clone(), o)?;
-            g.generate(&z.slice(0..best.2.min(a.count))?, lab.as_ref().map(|l| &l[..best.2.min(a.count)]))?;
-            // Best of three: one run of a few milliseconds is at the mercy of the scheduler.
-            let mut fastest = f64::INFINITY;
-            for _ in 0..3 {
-                let s = Instant::now();
-                g.generate(&z, lab.as_deref())?;
-                fastest = fastest.min(s.elapsed().as_secs_f64());
-            }
-            throughput.push((th, a.count as f64 / fastest));
-        }
+        o.micro_batch = measured.best_micro_batch;
+        let generator = Generator::new(model.clone(), o)?;
+        let profile = if a.profile {
+            eprintln!("  profile: {} runs at batch 1", a.profile_runs);
+            Some(generator.profile(1, a.profile_runs)?)
+        } else {
+            None
+        };
         // PSNR against the first model in f32 compute (so with --f16-compute the first row too
         // shows what f16 compute costs in fidelity).
-        let psnr = match (&first, a.f16_compute) {
+        let reference = match (&first, a.f16_compute) {
             (None, false) => None,
-            (None, true) => {
-                let reference = Generator::new(model.clone(), GeneratorOptions::default())?;
-                genloom::convert::compare_generators(&reference, &g1, genloom::DEFAULT_SEED, 32)
-                    .ok()
-                    .map(|x| x.psnr_db)
-            }
-            (Some(f), _) => {
-                let reference = Generator::new(f.clone(), GeneratorOptions::default())?;
-                genloom::convert::compare_generators(&reference, &g1, genloom::DEFAULT_SEED, 32)
+            (None, true) => Some(model.clone()),
+            (Some(f), _) => Some(f.clone()),
+        };
+        let psnr = match reference {
+            None => None,
+            Some(r) => {
+                let reference = Generator::new(r, GeneratorOptions::default())?;
+                genloom::convert::compare_generators(&reference, &generator, genloom::DEFAULT_SEED, 32)
                     .ok()
                     .map(|x| x.psnr_db)
             }
@@ -209,27 +159,18 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
         if first.is_none() {
             first = Some(model.clone());
         }
+        let best_rate = measured.throughput.iter().map(|t| t.1).fold(0.0, f64::max);
         rows.push(Row {
             model: label,
             file_bytes: model.info().file_bytes,
             load_ms,
-            optimise_ms,
-            batch1_p50_ms: b1_50,
-            batch1_p90_ms: b1_90,
-            best_micro_batch: best.2,
-            best_p50_ms_per_image: best.0,
-            best_p90_ms_per_image: best.1,
-            best_gmacs_per_s: model
-                .info()
-                .macs_per_sample
-                .map(|m| m as f64 * throughput.iter().map(|t| t.1).fold(0.0, f64::max) / 1e9),
+            best_gmacs_per_s: model.info().macs_per_sample.map(|m| m as f64 * best_rate / 1e9),
             macs_per_image: model.info().macs_per_sample,
-            throughput,
+            measured,
             peak_heap_load_bytes: peak_load,
-            steady_heap_bytes: steady,
-            peak_heap_generate_bytes: peak_gen,
             resident_bytes: resident(),
             psnr_vs_first_db: psnr,
+            profile,
         });
     }
     let report = Report {
@@ -249,21 +190,27 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
         s.push_str(&format!("{}\n", r.model));
         line(&mut s, "file", format!("{:.2} MiB", mib(r.file_bytes as f64)));
         line(&mut s, "load", format!("{:.1} ms", r.load_ms));
-        line(&mut s, "prepare (build the plans)", format!("{:.1} ms", r.optimise_ms));
+        line(&mut s, "prepare (build the plans)", format!("{:.1} ms", r.measured.prepare_ms));
         line(
             &mut s,
             "batch 1, one image",
-            format!("{:.3} ms median, {:.3} ms 90th percentile", r.batch1_p50_ms, r.batch1_p90_ms),
+            format!(
+                "{:.3} ms median, {:.3} ms 90th percentile",
+                r.measured.batch1_p50_ms, r.measured.batch1_p90_ms
+            ),
         );
         line(
             &mut s,
             "fastest micro-batch",
             format!(
                 "{}: {:.3} ms per image median, {:.3} ms 90th percentile",
-                r.best_micro_batch, r.best_p50_ms_per_image, r.best_p90_ms_per_image
+                r.measured.best_micro_batch,
+                r.measured.best_p50_ms_per_image,
+                r.measured.best_p90_ms_per_image
             ),
         );
         let tp: Vec<String> = r
+            .measured
             .throughput
             .iter()
             .map(|(t, v)| format!("{v:.0} with {t} thread{}", if *t == 1 { "" } else { "s" }))
@@ -277,8 +224,11 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
             "heap",
             format!(
                 "{:.1} MiB peak, {:.1} MiB steady",
-                mib(r.peak_heap_load_bytes.max(r.peak_heap_generate_bytes) as f64),
-                mib(r.steady_heap_bytes as f64)
+                mib(r
+                    .peak_heap_load_bytes
+                    .max(r.measured.peak_heap_prepare_bytes)
+                    .max(r.measured.peak_heap_generate_bytes) as f64),
+                mib(r.measured.steady_heap_bytes as f64)
             ),
         );
         if let Some(p) = r.psnr_vs_first_db {
@@ -288,7 +238,30 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
                 if p.is_infinite() { "identical pixels".to_string() } else { format!("{p:.1} dB") },
             );
         }
+        if let Some(p) = &r.profile {
+            s.push_str(&profile_text(p));
+        }
     }
     out(&s);
     Ok(())
+}
+
+/// The profile as text: time per operator type, then the ten costliest nodes.
+fn profile_text(p: &genloom::bench::Profile) -> String {
+    let mut s = format!(
+        "  where the time goes ({:.3} ms per run of {} image{}, mean of {} runs):\n",
+        p.total_ms,
+        p.batch,
+        if p.batch == 1 { "" } else { "s" },
+        p.runs
+    );
+    s.push_str(&format!("    {:<24} {:>6} {:>10} {:>7}\n", "operator", "nodes", "ms", "share"));
+    for o in &p.by_op {
+        s.push_str(&format!("    {:<24} {:>6} {:>10.3} {:>6.1}%\n", o.op, o.nodes, o.ms, o.share * 100.0));
+    }
+    s.push_str(&format!("    {:<40} {:<16} {:>10} {:>7}\n", "costliest nodes", "operator", "ms", "share"));
+    for n in &p.costliest {
+        s.push_str(&format!("    {:<40} {:<16} {:>10.3} {:>6.1}%\n", n.node, n.op, n.ms, n.share * 100.0));
+    }
+    s
 }

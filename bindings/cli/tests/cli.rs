@@ -180,7 +180,8 @@ fn bad_input_exits_2_with_one_line() {
         (&["sample", "--latents-in", "z.npy", "--seed", "3"], "cannot be used with"),
         (&["morph", "--keyframes", "k.npy", "--seeds", "1,2"], "cannot be used with"),
         (&["convert", "--to", "int4"], "[possible values: f32, f16, int8]"),
-        (&["bench", "--threads", "0"], "every --threads value must be at least 1"),
+        (&["bench", "--threads", "0"], "thread counts is [0], expected a list of counts of at least 1"),
+        (&["bench", "--profile-runs", "0"], "--profile-runs must be at least 1"),
         (&["sample", "--count", "0"], "count is 0, expected at least 1"),
         (&["sample", "--psi", "2"], "psi is 2"),
         (&["sample", "--label", "1"], "unconditional"),
@@ -380,7 +381,21 @@ fn check_report_identifies_what_was_checked_and_honours_strict_and_skip() {
 fn bench_reports_every_column() {
     let d = tempfile::tempdir().unwrap();
     let o = genloom(
-        &["bench", "--micro-batch", "1,4", "--iters", "5", "--count", "16", "--threads", "1", "--json"],
+        &[
+            "bench",
+            "--micro-batch",
+            "1,4",
+            "--iters",
+            "5",
+            "--count",
+            "16",
+            "--threads",
+            "1",
+            "--profile",
+            "--profile-runs",
+            "3",
+            "--json",
+        ],
         d.path(),
     );
     assert!(o.status.success(), "{}", text(&o.stderr));
@@ -390,7 +405,7 @@ fn bench_reports_every_column() {
     for key in [
         "file_bytes",
         "load_ms",
-        "optimise_ms",
+        "prepare_ms",
         "batch1_p50_ms",
         "best_micro_batch",
         "throughput",
@@ -403,6 +418,18 @@ fn bench_reports_every_column() {
         row["peak_heap_load_bytes"].as_u64().unwrap() > 1 << 20,
         "the model's weights pass through the heap"
     );
+    // The profile: the demo model's transposed convolutions take most of the time, the shares
+    // add up to the whole, and the costliest nodes come first.
+    let p = &row["profile"];
+    assert_eq!((p["batch"].as_u64(), p["runs"].as_u64()), (Some(1), Some(3)));
+    let by_op = p["by_op"].as_array().unwrap();
+    let share: f64 = by_op.iter().map(|o| o["share"].as_f64().unwrap()).sum();
+    assert!((share - 1.0).abs() < 1e-9, "shares add up to {share}");
+    let costliest = p["costliest"].as_array().unwrap();
+    assert!(!costliest.is_empty() && costliest.len() <= 10);
+    let ms: Vec<f64> = costliest.iter().map(|n| n["ms"].as_f64().unwrap()).collect();
+    assert!(ms.windows(2).all(|w| w[0] >= w[1]), "{ms:?}");
+    assert!(costliest.iter().any(|n| n["node"].as_str().unwrap().contains("ConvTranspose")), "{costliest:?}");
 }
 
 #[test]
