@@ -160,10 +160,8 @@ pub fn measure(
 ) -> Result<Measurement> {
     options.validate()?;
     let generator = |micro_batch: usize, threads: usize| {
-        let mut o = GeneratorOptions::default();
-        o.f16_compute = options.f16_compute;
-        o.micro_batch = micro_batch;
-        o.threads = threads;
+        let o =
+            GeneratorOptions { f16_compute: options.f16_compute, micro_batch, threads, ..Default::default() };
         Generator::new(model.clone(), o)
     };
     progress("prepare the batch-1 plan");
