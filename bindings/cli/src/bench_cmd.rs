@@ -99,7 +99,7 @@ pub fn run(a: &BenchArgs, alloc: &peak_alloc::PeakAlloc) -> CliResult {
     options.iters = a.iters;
     options.count = a.count;
     options.f16_compute = a.f16_compute;
-    options.validate().map_err(|e| usage(&e.to_string()))?;
+    options.validate().map_err(|e| usage(e.to_string()))?;
     if a.profile_runs == 0 {
         return Err(usage("--profile-runs must be at least 1"));
     }
