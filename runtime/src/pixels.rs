@@ -165,7 +165,74 @@ pub fn all_pixels(images: &Images, format: PixelFormat) -> Result<(Vec<Pixels>, 
     Ok((out, total))
 }
 
+/// The largest side, in pixels, of a picture genloom encodes (contact sheets and scaled
+/// pictures included).
+pub const MAX_SIDE: usize = 16384;
+
+/// Every image as packed 8-bit RGBA, one after the other: `count * height * width * 4` bytes,
+/// rows top to bottom, the layout of a canvas `ImageData` and of the C ABI's RGBA output. The
+/// conversion is [`to_pixels`]'s one rule, with alpha 255 unless the model makes it.
+///
+/// # Errors
+/// As [`to_pixels`].
+pub fn rgba8(images: &Images) -> Result<Vec<u8>> {
+    let mut out = Vec::with_capacity(images.count * images.width * images.height * 4);
+    for i in 0..images.count {
+        out.extend_from_slice(&to_pixels(images, i, PixelFormat::Rgba8)?.0.data);
+    }
+    Ok(out)
+}
+
+/// A PNG of the images: one image alone (scaled by `layout.scale`), or a contact sheet of
+/// several ([`grid`]), in the format that keeps every channel of the model's output, with the
+/// provenance chunks when given.
+///
+/// # Errors
+/// [`Error::InvalidOption`] for no images, a scale outside 1 to 64, or a picture over
+/// [`MAX_SIDE`] pixels a side; as [`grid`] and [`Pixels::to_png`].
+pub fn images_png(images: &Images, layout: &GridOptions, provenance: Option<&Provenance>) -> Result<Vec<u8>> {
+    if images.count == 0 {
+        return Err(Error::invalid("images", 0, "at least one image"));
+    }
+    if layout.scale == 0 || layout.scale > 64 {
+        return Err(Error::invalid("scale", layout.scale, "1 to 64"));
+    }
+    let format = PixelFormat::natural(images.channels);
+    if images.count == 1 {
+        let side = images.width.max(images.height).saturating_mul(layout.scale);
+        if side > MAX_SIDE {
+            return Err(Error::invalid("picture size", side, format!("at most {MAX_SIDE} pixels a side")));
+        }
+        let (p, _) = to_pixels(images, 0, format)?;
+        return p.upscale(layout.scale).to_png_with(provenance);
+    }
+    let (tiles, _) = all_pixels(images, format)?;
+    grid(&tiles, layout)?.to_png_with(provenance)
+}
+
 impl Pixels {
+    /// Packed RGBA bytes of a `width x height` picture (a canvas snapshot, say), checked.
+    ///
+    /// # Errors
+    /// [`Error::InvalidOption`] when a side is 0 or over [`MAX_SIDE`], or the buffer is not
+    /// `width * height * 4` bytes.
+    pub fn from_rgba8(data: Vec<u8>, width: usize, height: usize) -> Result<Pixels> {
+        for (name, side) in [("width", width), ("height", height)] {
+            if side == 0 || side > MAX_SIDE {
+                return Err(Error::invalid(name, side, format!("1 to {MAX_SIDE} pixels")));
+            }
+        }
+        let want = width * height * 4;
+        if data.len() != want {
+            return Err(Error::invalid(
+                "RGBA data",
+                format!("{} bytes", data.len()),
+                format!("{want} bytes ({width} x {height} pixels x 4)"),
+            ));
+        }
+        Ok(Pixels { width, height, format: PixelFormat::Rgba8, data })
+    }
+
     /// Scales up by an integer factor, nearest neighbour (keeps tiles crisp).
     pub fn upscale(&self, factor: usize) -> Pixels {
         if factor <= 1 {
@@ -390,7 +457,7 @@ pub fn grid(tiles: &[Pixels], options: &GridOptions) -> Result<Pixels> {
     let m = options.margin;
     let w = cols * tw + (cols + 1) * m;
     let h = rows * th + (rows + 1) * m;
-    if w > 16384 || h > 16384 {
+    if w > MAX_SIDE || h > MAX_SIDE {
         return Err(Error::invalid(
             "sheet size",
             format!("{w}x{h}"),
@@ -478,6 +545,65 @@ pub fn write_gif(path: &Path, frames: &[Pixels], options: &GifOptions) -> Result
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    fn tanh_images(count: usize) -> Images {
+        let (c, h, w) = (3, 2, 3);
+        let data = (0..count * c * h * w).map(|k| (k % 7) as f32 / 3.0 - 1.0).collect();
+        Images { count, channels: c, height: h, width: w, layout: crate::Layout::Nchw, range: ValueRange::TANH, data }
+    }
+
+    #[test]
+    fn rgba8_packs_the_one_rule_with_opaque_alpha() {
+        let im = tanh_images(2);
+        let out = rgba8(&im).unwrap();
+        assert_eq!(out.len(), 2 * 2 * 3 * 4);
+        for i in 0..2 {
+            let (p, _) = to_pixels(&im, i, PixelFormat::Rgba8).unwrap();
+            assert_eq!(&out[i * 24..(i + 1) * 24], &p.data[..]);
+        }
+        assert!(out.chunks(4).all(|px| px[3] == 255));
+    }
+
+    #[test]
+    fn images_png_of_one_image_and_of_a_sheet() {
+        let one = images_png(&tanh_images(1), &GridOptions { scale: 4, ..Default::default() }, None).unwrap();
+        assert!(one.starts_with(b"\x89PNG\r\n\x1a\n"));
+        // IHDR width and height, big-endian, at bytes 16..24 (PNG specification 11.2.2).
+        assert_eq!(&one[16..24], &[0, 0, 0, 12, 0, 0, 0, 8]);
+        let layout = GridOptions { columns: Some(4), scale: 1, margin: 1, ..Default::default() };
+        let sheet = images_png(&tanh_images(4), &layout, None).unwrap();
+        assert_eq!(&sheet[16..24], &[0, 0, 0, 4 * 3 + 5, 0, 0, 0, 2 + 2]);
+        let p = Provenance { model: "m".into(), model_sha256: "ab".into(), origin: "seed 1".into() };
+        let marked = images_png(&tanh_images(1), &GridOptions::default(), Some(&p)).unwrap();
+        assert!(marked.windows(4).any(|w| w == b"iTXt"));
+        assert!(!one.windows(4).any(|w| w == b"iTXt"));
+    }
+
+    #[test]
+    fn images_png_refuses_bad_scales_and_huge_pictures() {
+        for scale in [0, 65] {
+            let e = images_png(&tanh_images(1), &GridOptions { scale, ..Default::default() }, None).unwrap_err();
+            assert!(e.to_string().contains("scale"), "{e}");
+        }
+        let mut big = tanh_images(1);
+        big.width = 3000;
+        big.height = 1;
+        big.data = vec![0.0; 3 * 3000];
+        let e = images_png(&big, &GridOptions { scale: 8, ..Default::default() }, None).unwrap_err();
+        assert!(e.to_string().contains("at most 16384"), "{e}");
+        let mut none = tanh_images(1);
+        none.count = 0;
+        assert!(images_png(&none, &GridOptions::default(), None).is_err());
+    }
+
+    #[test]
+    fn from_rgba8_checks_the_buffer_size() {
+        assert!(Pixels::from_rgba8(vec![9; 2 * 3 * 4], 2, 3).unwrap().to_png().unwrap().starts_with(b"\x89PNG"));
+        let e = Pixels::from_rgba8(vec![9; 23], 2, 3).unwrap_err().to_string();
+        assert_eq!(e, "RGBA data is 23 bytes, expected 24 bytes (2 x 3 pixels x 4)");
+        assert!(Pixels::from_rgba8(vec![], 0, 3).is_err());
+        assert!(Pixels::from_rgba8(vec![0; 4 * 16385], 16385, 1).is_err());
+    }
 
     #[test]
     fn the_rule() {

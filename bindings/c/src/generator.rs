@@ -3,7 +3,6 @@
 use crate::boundary::{arg_ref, arg_slice, boundary, guard, Failure, Out, OutBuf, Outcome};
 use crate::options::genloom_options;
 use crate::status::genloom_status;
-use genloom::pixels::{to_pixels, PixelFormat};
 use genloom::{Generator, GeneratorOptions, Images, Latents, LoadOptions, Model, RngMode, SampleOptions};
 use std::ffi::{c_char, c_int, c_void, CStr};
 
@@ -567,10 +566,7 @@ pub unsafe extern "C" fn genloom_generator_generate_rgba8(
         // SAFETY: `needed` is NULL or writable by this function's contract.
         unsafe { out.reserve(n) }?;
         let images = request.run()?;
-        let mut bytes = Vec::with_capacity(n);
-        for i in 0..images.count {
-            bytes.extend_from_slice(&to_pixels(&images, i, PixelFormat::Rgba8)?.0.data);
-        }
+        let bytes = genloom::pixels::rgba8(&images)?;
         // SAFETY: the buffer and `needed` are writable by this function's contract; `bytes` is ours.
         unsafe { out.fill(&bytes) }
     })

@@ -2,7 +2,7 @@
 
 use crate::boundary::{arg_slice, boundary, Failure, OutBuf};
 use crate::status::genloom_status;
-use genloom::pixels::{PixelFormat, Pixels};
+use genloom::pixels::Pixels;
 
 /// Encodes `width x height` RGBA8 pixels (rows top to bottom, 4 bytes per pixel, as
 /// `genloom_generator_generate_rgba8` writes them; `rgba_len` must be `width * height * 4`) as
@@ -41,8 +41,7 @@ pub unsafe extern "C" fn genloom_pixels_encode_png(
                 expected.map_or_else(|| "(overflow)".to_string(), |n| n.to_string())
             )));
         }
-        let pixels = Pixels { width, height, format: PixelFormat::Rgba8, data: rgba.to_vec() };
-        let bytes = pixels.to_png()?;
+        let bytes = Pixels::from_rgba8(rgba.to_vec(), width, height)?.to_png()?;
         // SAFETY: the buffer and `needed` are writable by this function's contract; `bytes` is ours.
         unsafe { out.fill(&bytes) }
     })

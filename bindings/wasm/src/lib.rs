@@ -28,11 +28,23 @@ use genloom::{
 use wasm_bindgen::prelude::*;
 use wasm_bindgen::Clamped;
 
-/// Most images one call may draw or generate (the runtime's own `Limits::max_images` also holds).
-pub const MAX_COUNT: u64 = 65_536;
+/// Most images one call may draw or generate in the web build: the runtime's
+/// `Limits::max_images`, set lower than its native default because a page's memory is smaller.
+pub const MAX_IMAGES: u64 = 65_536;
 
-fn err(e: genloom::Error) -> JsError {
-    JsError::new(&e.chain())
+/// A thrown `Error` with the runtime's message (its cause chain included), `name`
+/// `"GenloomError"` and `kind`, the runtime's error kind (`load`, `signature`, `argument`,
+/// `npy`, `inference`, `cancelled`, `limits` or `io`).
+fn err(e: genloom::Error) -> JsValue {
+    thrown(&e.chain(), e.kind().as_str())
+}
+
+fn thrown(message: &str, kind: &str) -> JsValue {
+    let error = js_sys::Error::new(message);
+    error.set_name("GenloomError");
+    // Setting a property on a fresh Error object cannot fail.
+    let _ = js_sys::Reflect::set(&error, &JsValue::from_str("kind"), &JsValue::from_str(kind));
+    error.into()
 }
 
 #[cfg(target_arch = "wasm32")]
@@ -72,7 +84,7 @@ impl Generator {
     /// Throws for bytes that are not a usable generator (empty, an HTML page, not ONNX, external
     /// data, no latent input...) and for bad options, with the runtime's message.
     #[wasm_bindgen(constructor)]
-    pub fn new(bytes: &JsValue, options: &JsValue) -> Result<Generator, JsError> {
+    pub fn new(bytes: &JsValue, options: &JsValue) -> Result<Generator, JsValue> {
         let fields =
             js::Fields::new("generator options", options, &["microBatch", "maxCachedPlans", "warmUp", "f16Compute"])
                 .map_err(err)?;
@@ -95,7 +107,9 @@ impl Generator {
         // WebAssembly here has one thread: generation always runs on the calling thread.
         opts.threads = 1;
         let bytes = js::bytes("model bytes", bytes).map_err(err)?;
-        let model = Model::from_bytes(&bytes, &LoadOptions::default()).map_err(err)?;
+        let mut load = LoadOptions::default();
+        load.limits.max_images = MAX_IMAGES;
+        let model = Model::from_bytes(&bytes, &load).map_err(err)?;
         let inner = genloom::Generator::new(model, opts).map_err(err)?;
         Ok(Generator { inner })
     }
@@ -105,7 +119,7 @@ impl Generator {
     /// # Errors
     /// As the constructor.
     #[wasm_bindgen(js_name = fromBytes)]
-    pub fn from_bytes(bytes: &JsValue, options: &JsValue) -> Result<Generator, JsError> {
+    pub fn from_bytes(bytes: &JsValue, options: &JsValue) -> Result<Generator, JsValue> {
         Generator::new(bytes, options)
     }
 
@@ -151,7 +165,7 @@ impl Generator {
     ///
     /// # Errors
     /// Never in practice.
-    pub fn signature(&self) -> Result<JsValue, JsError> {
+    pub fn signature(&self) -> Result<JsValue, JsValue> {
         to_js(self.inner.signature())
     }
 
@@ -160,7 +174,7 @@ impl Generator {
     ///
     /// # Errors
     /// Never in practice.
-    pub fn info(&self) -> Result<JsValue, JsError> {
+    pub fn info(&self) -> Result<JsValue, JsValue> {
         to_js(self.inner.model().info())
     }
 
@@ -173,9 +187,10 @@ impl Generator {
     /// # Errors
     /// Throws for a bad seed, count or option.
     #[wasm_bindgen(js_name = sampleLatents)]
-    pub fn sample_latents(&self, seed: &JsValue, count: f64, options: &JsValue) -> Result<Vec<f32>, JsError> {
+    pub fn sample_latents(&self, seed: &JsValue, count: f64, options: &JsValue) -> Result<Vec<f32>, JsValue> {
         let seed = js::seed("seed", seed).map_err(err)?;
-        let count = render::whole("count", count, 1, MAX_COUNT).map_err(err)? as usize;
+        let max = self.inner.model().limits().max_images;
+        let count = render::whole("count", count, 1, max).map_err(err)? as usize;
         let f =
             js::Fields::new("sample options", options, &["truncation", "psi", "prior", "mode", "firstIndex"])
                 .map_err(err)?;
@@ -210,7 +225,7 @@ impl Generator {
     /// # Errors
     /// As `latentPath`.
     #[wasm_bindgen(js_name = latentPath)]
-    pub fn latent_path(&self, keyframes: &JsValue, options: &JsValue) -> Result<Vec<f32>, JsError> {
+    pub fn latent_path(&self, keyframes: &JsValue, options: &JsValue) -> Result<Vec<f32>, JsValue> {
         latent_path(keyframes, self.latent_dim() as f64, options)
     }
 
@@ -224,9 +239,9 @@ impl Generator {
     /// Throws for latents of the wrong size or with NaN, missing or out-of-range labels, or a
     /// failed inference.
     #[wasm_bindgen(js_name = generateRgba)]
-    pub fn generate_rgba(&self, latents: &JsValue, labels: &JsValue) -> Result<Clamped<Vec<u8>>, JsError> {
+    pub fn generate_rgba(&self, latents: &JsValue, labels: &JsValue) -> Result<Clamped<Vec<u8>>, JsValue> {
         let images = self.run(latents, labels)?;
-        Ok(Clamped(render::rgba(&images).map_err(err)?))
+        Ok(Clamped(genloom::pixels::rgba8(&images).map_err(err)?))
     }
 
     /// Generates as `generateRgba` does but returns the model's raw output: a `Float32Array` of
@@ -235,13 +250,15 @@ impl Generator {
     /// # Errors
     /// As `generateRgba`.
     #[wasm_bindgen(js_name = generateFloat)]
-    pub fn generate_float(&self, latents: &JsValue, labels: &JsValue) -> Result<Vec<f32>, JsError> {
+    pub fn generate_float(&self, latents: &JsValue, labels: &JsValue) -> Result<Vec<f32>, JsValue> {
         Ok(self.run(latents, labels)?.data)
     }
 
     /// Generates and encodes a PNG (a `Uint8Array`): one image alone, or a contact sheet of
     /// several. `options`: `columns` (tiles per row), `scale` (1 to 64, nearest neighbour),
-    /// `margin` (pixels between tiles, default 2).
+    /// `margin` (pixels between tiles, default 2), `provenance` (default true: text chunks say
+    /// the picture is synthetic and name the model's SHA-256 and the latent count, as every
+    /// PNG genloom writes does).
     ///
     /// # Errors
     /// As `generateRgba`, and for bad options or a picture over 16384 pixels a side.
@@ -251,9 +268,10 @@ impl Generator {
         latents: &JsValue,
         labels: &JsValue,
         options: &JsValue,
-    ) -> Result<Vec<u8>, JsError> {
-        let f = js::Fields::new("PNG options", options, &["columns", "scale", "margin"]).map_err(err)?;
-        let mut o = render::PngOptions::default();
+    ) -> Result<Vec<u8>, JsValue> {
+        let f = js::Fields::new("PNG options", options, &["columns", "scale", "margin", "provenance"])
+            .map_err(err)?;
+        let mut o = genloom::pixels::GridOptions::default();
         if let Some(v) = f.get("columns").map_err(err)? {
             o.columns = Some(
                 render::whole("columns", js::number("columns", &v).map_err(err)?, 1, 4096).map_err(err)?
@@ -268,13 +286,22 @@ impl Generator {
             o.margin = render::whole("margin", js::number("margin", &v).map_err(err)?, 0, 256).map_err(err)?
                 as usize;
         }
+        let with_provenance = match f.get("provenance").map_err(err)? {
+            Some(v) => js::boolean("provenance", &v).map_err(err)?,
+            None => true,
+        };
         let images = self.run(latents, labels)?;
-        render::png(&images, &o).map_err(err)
+        let provenance = genloom::pixels::Provenance {
+            model: "model bytes given to genloom's web package".into(),
+            model_sha256: self.inner.model().info().sha256.clone(),
+            origin: format!("{} latents given to generatePng", images.count),
+        };
+        genloom::pixels::images_png(&images, &o, with_provenance.then_some(&provenance)).map_err(err)
     }
 }
 
 impl Generator {
-    fn run(&self, latents: &JsValue, labels: &JsValue) -> Result<genloom::Images, JsError> {
+    fn run(&self, latents: &JsValue, labels: &JsValue) -> Result<genloom::Images, JsValue> {
         let dim = self.latent_dim();
         let values = js::floats("latents", latents).map_err(err)?;
         if values.len() < 2 * dim && values.len() != dim {
@@ -289,18 +316,14 @@ impl Generator {
             )));
         }
         let labels = js::labels(labels).map_err(err)?;
-        if (values.len() / dim) as u64 > MAX_COUNT {
-            let n = values.len() / dim;
-            return Err(err(render::invalid("image count", n, format!("at most {MAX_COUNT} per call"))));
-        }
         let latents = Latents::new(dim, values).map_err(err)?;
         self.inner.generate(&latents, labels.as_deref()).map_err(err)
     }
 }
 
-fn to_js<T: serde::Serialize>(value: &T) -> Result<JsValue, JsError> {
-    let text = serde_json::to_string(value).map_err(|e| JsError::new(&format!("could not describe: {e}")))?;
-    js_sys::JSON::parse(&text).map_err(|_| JsError::new("could not describe: JSON.parse failed"))
+fn to_js<T: serde::Serialize>(value: &T) -> Result<JsValue, JsValue> {
+    let text = serde_json::to_string(value).map_err(|e| thrown(&format!("could not describe: {e}"), "io"))?;
+    js_sys::JSON::parse(&text).map_err(|_| thrown("could not describe: JSON.parse failed", "io"))
 }
 
 /// Straight-line interpolation `(1 - t) a + t b` of two latents (`Float32Array`s of one
@@ -309,7 +332,7 @@ fn to_js<T: serde::Serialize>(value: &T) -> Result<JsValue, JsError> {
 /// # Errors
 /// Throws for lengths that differ, a non-finite `t` or non-finite values.
 #[wasm_bindgen]
-pub fn lerp(a: &JsValue, b: &JsValue, t: f64) -> Result<Vec<f32>, JsError> {
+pub fn lerp(a: &JsValue, b: &JsValue, t: f64) -> Result<Vec<f32>, JsValue> {
     let (a, b) = (js::floats("a", a).map_err(err)?, js::floats("b", b).map_err(err)?);
     genloom::latent::lerp(&a, &b, t).map_err(err)
 }
@@ -320,7 +343,7 @@ pub fn lerp(a: &JsValue, b: &JsValue, t: f64) -> Result<Vec<f32>, JsError> {
 /// # Errors
 /// As `lerp`.
 #[wasm_bindgen]
-pub fn slerp(a: &JsValue, b: &JsValue, t: f64) -> Result<Vec<f32>, JsError> {
+pub fn slerp(a: &JsValue, b: &JsValue, t: f64) -> Result<Vec<f32>, JsValue> {
     let (a, b) = (js::floats("a", a).map_err(err)?, js::floats("b", b).map_err(err)?);
     genloom::latent::slerp(&a, &b, t).map_err(err)
 }
@@ -334,7 +357,7 @@ pub fn slerp(a: &JsValue, b: &JsValue, t: f64) -> Result<Vec<f32>, JsError> {
 /// Throws for fewer than 2 keyframes, values that are not a multiple of `dim`, `steps` 0 or
 /// over 100000 frames in all.
 #[wasm_bindgen(js_name = latentPath)]
-pub fn latent_path(keyframes: &JsValue, dim: f64, options: &JsValue) -> Result<Vec<f32>, JsError> {
+pub fn latent_path(keyframes: &JsValue, dim: f64, options: &JsValue) -> Result<Vec<f32>, JsValue> {
     let dim = render::whole("latent size", dim, 1, 1 << 20).map_err(err)? as usize;
     let f = js::Fields::new("path options", options, &["steps", "interpolation", "looped"]).map_err(err)?;
     let mut o = PathOptions::default();
@@ -359,10 +382,11 @@ pub fn latent_path(keyframes: &JsValue, dim: f64, options: &JsValue) -> Result<V
 /// # Errors
 /// Throws when the bytes are not `width * height * 4` or a side is 0 or over 16384.
 #[wasm_bindgen(js_name = encodePng)]
-pub fn encode_png(rgba: &JsValue, width: f64, height: f64) -> Result<Vec<u8>, JsError> {
-    let w = render::whole("width", width, 1, render::MAX_PNG_SIDE as u64).map_err(err)? as usize;
-    let h = render::whole("height", height, 1, render::MAX_PNG_SIDE as u64).map_err(err)? as usize;
-    render::png_of_rgba(js::bytes("RGBA data", rgba).map_err(err)?, w, h).map_err(err)
+pub fn encode_png(rgba: &JsValue, width: f64, height: f64) -> Result<Vec<u8>, JsValue> {
+    let w = render::whole("width", width, 1, genloom::pixels::MAX_SIDE as u64).map_err(err)? as usize;
+    let h = render::whole("height", height, 1, genloom::pixels::MAX_SIDE as u64).map_err(err)? as usize;
+    let pixels = genloom::pixels::Pixels::from_rgba8(js::bytes("RGBA data", rgba).map_err(err)?, w, h).map_err(err)?;
+    pixels.to_png().map_err(err)
 }
 
 /// The version of the genloom runtime inside this package.

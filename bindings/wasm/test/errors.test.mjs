@@ -17,8 +17,11 @@ function stillWorks() {
   assert.ok(compare(rgba, want).max <= 1, "the module gives other pixels after an error");
 }
 
-/** `fn` throws a JS Error whose message matches `pattern`; then the module still works. */
-function refuses(fn, pattern) {
+/**
+ * `fn` throws a JS Error named GenloomError whose message matches `pattern` and whose `kind` is
+ * the runtime's error kind (`kind`, when given); then the module still works.
+ */
+function refuses(fn, pattern, kind) {
   let caught;
   try {
     fn();
@@ -29,14 +32,20 @@ function refuses(fn, pattern) {
   assert.ok(caught instanceof Error, `thrown value is not an Error: ${caught}`);
   assert.ok(!(caught instanceof WebAssembly.RuntimeError), `the module trapped: ${caught.message}`);
   assert.match(caught.message, pattern);
+  assert.equal(caught.name, "GenloomError", caught.message);
+  assert.ok(
+    ["load", "signature", "argument", "npy", "inference", "cancelled", "limits", "io"].includes(caught.kind),
+    `kind is ${caught.kind}`,
+  );
+  if (kind !== undefined) assert.equal(caught.kind, kind, caught.message);
   stillWorks();
   return caught.message;
 }
 
 test("model bytes that are not a generator are refused with the runtime's message", (t) => {
   const messages = [
-    refuses(() => new wasm.Generator(new Uint8Array([1, 2, 3, 250, 251, 252, 7, 9, 9, 9])), /not an ONNX model/),
-    refuses(() => new wasm.Generator(new Uint8Array(0)), /empty \(0 bytes\)/),
+    refuses(() => new wasm.Generator(new Uint8Array([1, 2, 3, 250, 251, 252, 7, 9, 9, 9])), /not an ONNX model/, "load"),
+    refuses(() => new wasm.Generator(new Uint8Array(0)), /empty \(0 bytes\)/, "load"),
     refuses(
       () => new wasm.Generator(new TextEncoder().encode("<!DOCTYPE html><html><body>404</body></html>")),
       /HTML page/,
@@ -52,7 +61,7 @@ test("model bytes that are not a generator are refused with the runtime's messag
   // A truncated real model, and bad options with a good one.
   const bytes = modelBytes("tiles");
   messages.push(refuses(() => new wasm.Generator(bytes.subarray(0, bytes.length >> 1)), /.+/));
-  messages.push(refuses(() => new wasm.Generator(bytes, { microBatch: 0 }), /microBatch is 0/));
+  messages.push(refuses(() => new wasm.Generator(bytes, { microBatch: 0 }), /microBatch is 0/, "argument"));
   messages.push(refuses(() => new wasm.Generator(bytes, { threads: 4 }), /field `threads`.*unknown/));
   for (const m of messages) t.diagnostic(m);
 });
@@ -85,7 +94,7 @@ test("labels out of range, missing or extra are refused", (t) => {
   const k = generator("tiles-kind");
   const z = k.sampleLatents(1n, 2);
   const messages = [
-    refuses(() => k.generateRgba(z, BigInt64Array.of(0n, 4n)), /label 1 is 4, the model has classes 0\.\.4/),
+    refuses(() => k.generateRgba(z, BigInt64Array.of(0n, 4n)), /label 1 is 4, the model has classes 0\.\.4/, "argument"),
     refuses(() => k.generateRgba(z, [0, -1]), /label 1 is -1/),
     refuses(() => k.generateRgba(z), /labels?/i),
     refuses(() => k.generateRgba(z, [0]), /labels?/i),
@@ -105,7 +114,7 @@ test("bad seeds, counts and options are refused", (t) => {
     refuses(() => g.sampleLatents("7", 1), /seed is a string/),
     refuses(() => g.sampleLatents(7n, 0), /count is 0, expected a whole number from 1/),
     refuses(() => g.sampleLatents(7n, 2.5), /count is 2\.5/),
-    refuses(() => g.sampleLatents(7n, 1e9), /count is 1000000000/),
+    refuses(() => g.sampleLatents(7n, 1e9), /count is 1000000000, expected a whole number from 1 to 65536/, "argument"),
     refuses(() => g.sampleLatents(7n, 1, { truncation: 0 }), /truncation is 0/),
     refuses(() => g.sampleLatents(7n, 1, { truncation: "0.7" }), /truncation is a string, expected a number/),
     refuses(() => g.sampleLatents(7n, 1, { psi: 2 }), /psi is 2/),

@@ -87,6 +87,13 @@ for (const [name, model] of Object.entries(golden.models)) {
     assert.deepEqual(pngSize(one), { width: model.width * 4, height: model.height * 4 });
     const sheet = g.generatePng(z.subarray(0, 4 * dim), labels?.subarray(0, 4), { columns: 2, margin: 1 });
     assert.deepEqual(pngSize(sheet), { width: 2 * model.width + 3, height: 2 * model.height + 3 });
+    // Provenance (PNG specification 11.3.4.5, iTXt): the picture says it is synthetic and names
+    // the model's SHA-256, unless turned off.
+    const text = new TextDecoder("latin1").decode(one);
+    assert.ok(text.includes("iTXt") && text.includes("genloom:synthetic"), "no provenance chunk");
+    assert.ok(text.includes(g.info().sha256), "the provenance does not name the model's SHA-256");
+    const plain = new TextDecoder("latin1").decode(g.generatePng(z.subarray(0, dim), labels?.subarray(0, 1), { provenance: false }));
+    assert.ok(!plain.includes("iTXt"), "provenance: false still wrote a text chunk");
     const rgba = g.generateRgba(z.subarray(0, dim), labels?.subarray(0, 1));
     assert.deepEqual(pngSize(wasm.encodePng(rgba, model.width, model.height)), {
       width: model.width,
