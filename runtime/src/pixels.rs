@@ -549,7 +549,15 @@ mod tests {
     fn tanh_images(count: usize) -> Images {
         let (c, h, w) = (3, 2, 3);
         let data = (0..count * c * h * w).map(|k| (k % 7) as f32 / 3.0 - 1.0).collect();
-        Images { count, channels: c, height: h, width: w, layout: crate::Layout::Nchw, range: ValueRange::TANH, data }
+        Images {
+            count,
+            channels: c,
+            height: h,
+            width: w,
+            layout: crate::Layout::Nchw,
+            range: ValueRange::TANH,
+            data,
+        }
     }
 
     #[test]
@@ -582,7 +590,8 @@ mod tests {
     #[test]
     fn images_png_refuses_bad_scales_and_huge_pictures() {
         for scale in [0, 65] {
-            let e = images_png(&tanh_images(1), &GridOptions { scale, ..Default::default() }, None).unwrap_err();
+            let e =
+                images_png(&tanh_images(1), &GridOptions { scale, ..Default::default() }, None).unwrap_err();
             assert!(e.to_string().contains("scale"), "{e}");
         }
         let mut big = tanh_images(1);
@@ -598,7 +607,11 @@ mod tests {
 
     #[test]
     fn from_rgba8_checks_the_buffer_size() {
-        assert!(Pixels::from_rgba8(vec![9; 2 * 3 * 4], 2, 3).unwrap().to_png().unwrap().starts_with(b"\x89PNG"));
+        assert!(Pixels::from_rgba8(vec![9; 2 * 3 * 4], 2, 3)
+            .unwrap()
+            .to_png()
+            .unwrap()
+            .starts_with(b"\x89PNG"));
         let e = Pixels::from_rgba8(vec![9; 23], 2, 3).unwrap_err().to_string();
         assert_eq!(e, "RGBA data is 23 bytes, expected 24 bytes (2 x 3 pixels x 4)");
         assert!(Pixels::from_rgba8(vec![], 0, 3).is_err());

@@ -514,3 +514,101 @@ fn pngs_carry_their_provenance_unless_asked_not_to() {
     assert!(o.status.success(), "{}", text(&o.stderr));
     pillow_text(&d.path().join("strip.png"), serde_json::json!({"genloom:synthetic": "true"}));
 }
+
+/// Times vary from run to run: every number directly before `ms` (and every number in a table
+/// row of milliseconds) becomes `<ms>`, and runs of spaces become one, so the rest of a sample
+/// output is compared exactly.
+fn steady(text: &str) -> String {
+    let is_number = |w: &str| {
+        let w = w.trim_start_matches('(');
+        !w.is_empty() && w.chars().all(|c| c.is_ascii_digit() || c == '.')
+    };
+    text.lines()
+        .map(|line| {
+            let timing_row = line.contains("ms per image (batch") || line.trim_start().starts_with("load ms");
+            let words: Vec<&str> = line.split_whitespace().collect();
+            let mut out: Vec<String> = vec![];
+            for (i, w) in words.iter().enumerate() {
+                let next = words.get(i + 1).copied().unwrap_or("");
+                let timed = next.starts_with("ms") || timing_row;
+                if is_number(w) && timed {
+                    out.push(if w.starts_with('(') { "(<ms>".into() } else { "<ms>".into() });
+                } else {
+                    out.push((*w).to_string());
+                }
+            }
+            out.join(" ")
+        })
+        .collect::<Vec<_>>()
+        .join("\n")
+}
+
+/// The README's sample outputs are what the commands print: each ```text block of the README
+/// whose lines start with `$ genloom` is run here, in a scratch folder beside the demo models,
+/// and compared after [`steady`]. `GENLOOM_BLESS_README=1` writes the current outputs into the
+/// README instead (the script that makes the samples).
+#[test]
+fn readme_samples_are_what_the_commands_print() {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
+    let readme_path = root.join("README.md");
+    let readme = std::fs::read_to_string(&readme_path).unwrap();
+    let d = tempfile::tempdir().unwrap();
+    #[cfg(unix)]
+    std::os::unix::fs::symlink(
+        root.join("models-demo").canonicalize().unwrap(),
+        d.path().join("models-demo"),
+    )
+    .unwrap();
+    let mut out = String::new();
+    let mut rest = readme.as_str();
+    let mut blocks = 0;
+    let mut differences = vec![];
+    while let Some(start) = rest.find("```text\n$ genloom ") {
+        let body_start = start + "```text\n".len();
+        let end = body_start + rest[body_start..].find("```").unwrap();
+        out.push_str(&rest[..body_start]);
+        let shown = &rest[body_start..end];
+        let mut fresh = String::new();
+        for line in shown.lines().filter(|l| l.starts_with("$ genloom ")) {
+            let args: Vec<&str> = line["$ genloom ".len()..].split_whitespace().collect();
+            let o = genloom(&args, d.path());
+            assert!(o.status.success(), "{line}: {}", text(&o.stderr));
+            fresh.push_str(line);
+            fresh.push('\n');
+            fresh.push_str(&text(&o.stdout));
+        }
+        if steady(shown) != steady(&fresh) {
+            differences.push(format!("README shows:\n{shown}\nthe commands print:\n{fresh}"));
+        }
+        out.push_str(&fresh);
+        rest = &rest[end..];
+        blocks += 1;
+    }
+    out.push_str(rest);
+    assert!(blocks >= 5, "only {blocks} sample blocks found in the README");
+    if std::env::var_os("GENLOOM_BLESS_README").is_some() {
+        std::fs::write(&readme_path, out).unwrap();
+        return;
+    }
+    assert!(
+        differences.is_empty(),
+        "{}\n(GENLOOM_BLESS_README=1 cargo test -p genloom-cli --test cli readme_samples writes them)",
+        differences.join("\n---\n")
+    );
+}
+
+#[test]
+fn steady_blanks_only_timings() {
+    assert_eq!(steady("wrote t.onnx (int8) in 726 ms"), "wrote t.onnx (int8) in <ms> ms");
+    assert_eq!(
+        steady("  ms per image (batch 8)          0.457          0.436"),
+        "ms per image (batch 8) <ms> <ms>"
+    );
+    assert_eq!(steady("  load ms   193.6   56.3"), "load ms <ms> <ms>");
+    assert_eq!(
+        steady("  load 235.8 ms, plans 425.7 ms, generate 19.1 ms (1.195 ms per image)"),
+        "load <ms> ms, plans <ms> ms, generate <ms> ms (<ms> ms per image)"
+    );
+    assert_eq!(steady("ship: 9 passed (1073 ms, seed 0)"), "ship: 9 passed (<ms> ms, seed 0)");
+    assert_eq!(steady("PSNR 52.61 dB"), "PSNR 52.61 dB");
+}
