@@ -386,3 +386,58 @@ fn resize_any_opset(
     };
     resize(&ctx10, node)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn element_counts_refuse_negative_dims_and_overflow() {
+        let mut t = f32_tensor("t", &[2, 3], &[0.0; 6]);
+        assert_eq!(element_count(&t).unwrap(), 6);
+        t.dims = vec![2, -3];
+        assert!(element_count(&t).unwrap_err().to_string().contains("negative dimension -3"));
+        t.dims = vec![1 << 40, 1 << 40];
+        assert!(matches!(element_count(&t), Err(Error::Limit { .. })));
+        // ONNX TensorProto.DataType: FLOAT 4 bytes, FLOAT16 2, INT64 8, STRING none.
+        assert_eq!(
+            (elem_size(dt::FLOAT), elem_size(dt::FLOAT16), elem_size(dt::INT64), elem_size(8)),
+            (Some(4), Some(2), Some(8), None)
+        );
+    }
+
+    #[test]
+    fn float16_reads_by_ieee_754_binary16() {
+        // 0x3C00 is 1.0, 0xC000 is -2.0, 0x7BFF is 65504 (the largest finite), 0x0001 is 2^-24.
+        let raw: Vec<u8> = [0x3C00u16, 0xC000, 0x7BFF, 0x0001].iter().flat_map(|h| h.to_le_bytes()).collect();
+        let t =
+            pb::TensorProto { dims: vec![4], data_type: dt::FLOAT16, raw_data: raw, ..Default::default() };
+        assert_eq!(read_f32(&t).unwrap(), vec![1.0, -2.0, 65504.0, 2f32.powi(-24)]);
+        let short = pb::TensorProto { dims: vec![5], ..t };
+        assert!(read_f32(&short).is_err(), "4 values for shape [5]");
+    }
+
+    #[test]
+    fn fresh_names_and_pruning() {
+        let mut g = pb::GraphProto {
+            node: vec![pb::NodeProto {
+                op_type: "Relu".into(),
+                input: vec!["w".into()],
+                output: vec!["y".into()],
+                ..Default::default()
+            }],
+            initializer: vec![f32_tensor("w", &[1], &[1.0]), f32_tensor("unused", &[1], &[2.0])],
+            input: vec![pb::ValueInfoProto { name: "unused".into(), ..Default::default() }],
+            output: vec![pb::ValueInfoProto { name: "y".into(), ..Default::default() }],
+            ..Default::default()
+        };
+        let mut names = Names::of(&g);
+        assert_eq!(names.fresh("w"), "w_2");
+        assert_eq!(names.fresh("w"), "w_3");
+        assert_eq!(names.fresh("z"), "z");
+        assert_eq!(prune_constants(&mut g), 1);
+        assert_eq!(g.initializer.len(), 1);
+        assert!(g.input.is_empty(), "the unused initializer's input listing goes with it");
+        assert_eq!(constants(&g).keys().copied().collect::<Vec<_>>(), vec!["w"]);
+    }
+}

@@ -157,3 +157,142 @@ pub(super) fn fold_batchnorm(g: &mut pb::GraphProto) -> Result<Vec<String>> {
 fn wv_len(dims: &[i64]) -> usize {
     dims.iter().map(|&d| d as usize).product()
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn node(op: &str, inputs: &[&str], output: &str, attrs: Vec<pb::AttributeProto>) -> pb::NodeProto {
+        pb::NodeProto {
+            name: format!("{op}_0"),
+            op_type: op.into(),
+            input: inputs.iter().map(|s| s.to_string()).collect(),
+            output: vec![output.into()],
+            attribute: attrs,
+            ..Default::default()
+        }
+    }
+
+    fn int_attr(name: &str, i: i64) -> pb::AttributeProto {
+        pb::AttributeProto { name: name.into(), r#type: 2, i, ..Default::default() }
+    }
+
+    /// A layer whose output feeds a BatchNormalization of `c` channels, with statistics chosen
+    /// so every channel has its own scale; returns the graph and (scale, shift) per channel by
+    /// the formula of the ONNX operator specification, BatchNormalization:
+    /// y = gamma (x - mean) / sqrt(var + eps) + beta.
+    fn with_bn(
+        layer: pb::NodeProto,
+        weight: pb::TensorProto,
+        c: usize,
+    ) -> (pb::GraphProto, Vec<f64>, Vec<f64>) {
+        let gamma: Vec<f32> = (0..c).map(|i| 0.5 + i as f32 * 0.25).collect();
+        let beta: Vec<f32> = (0..c).map(|i| i as f32 * -0.1).collect();
+        let mean: Vec<f32> = (0..c).map(|i| 0.05 * i as f32).collect();
+        let var: Vec<f32> = (0..c).map(|i| 1.0 + i as f32).collect();
+        let eps = 1e-5f64;
+        let scale: Vec<f64> =
+            (0..c).map(|i| f64::from(gamma[i]) / (f64::from(var[i]) + eps).sqrt()).collect();
+        let shift: Vec<f64> = (0..c).map(|i| f64::from(beta[i]) - f64::from(mean[i]) * scale[i]).collect();
+        let cd = [c as i64];
+        let g = pb::GraphProto {
+            node: vec![
+                layer,
+                node("BatchNormalization", &["h", "gamma", "beta", "mean", "var"], "y", vec![]),
+            ],
+            initializer: vec![
+                weight,
+                onnx::f32_tensor("gamma", &cd, &gamma),
+                onnx::f32_tensor("beta", &cd, &beta),
+                onnx::f32_tensor("mean", &cd, &mean),
+                onnx::f32_tensor("var", &cd, &var),
+            ],
+            output: vec![pb::ValueInfoProto { name: "y".into(), ..Default::default() }],
+            ..Default::default()
+        };
+        (g, scale, shift)
+    }
+
+    fn tensor<'a>(g: &'a pb::GraphProto, name: &str) -> Vec<f32> {
+        let t = g.initializer.iter().find(|t| t.name == name).unwrap_or_else(|| panic!("no {name}"));
+        onnx::read_f32(t).unwrap()
+    }
+
+    fn close(a: f32, b: f64) -> bool {
+        (f64::from(a) - b).abs() <= 1e-6 * b.abs().max(1.0)
+    }
+
+    #[test]
+    fn grouped_conv_transpose_scales_each_output_channel_of_its_group() {
+        // ONNX ConvTranspose: W is [C_in, C_out / group, kH, kW]; input channels
+        // g*C_in/group .. (g+1)*C_in/group feed output channels g*C_out/group .. (g+1)*C_out/group.
+        let (cin, per_group_out, group, k) = (4usize, 3usize, 2usize, 2usize);
+        let w: Vec<f32> = (0..cin * per_group_out * k * k).map(|i| 1.0 + i as f32 / 16.0).collect();
+        let weight = onnx::f32_tensor("w", &[cin as i64, per_group_out as i64, k as i64, k as i64], &w);
+        let layer = node("ConvTranspose", &["x", "w"], "h", vec![int_attr("group", group as i64)]);
+        let (mut g, scale, shift) = with_bn(layer, weight, per_group_out * group);
+        let changes = fold_batchnorm(&mut g).unwrap();
+        assert_eq!(changes.len(), 1, "{changes:?}");
+        assert_eq!(g.node.len(), 1);
+        assert_eq!(g.node[0].output[0], "y", "the layer writes what the BatchNormalization wrote");
+        let folded = tensor(&g, &g.node[0].input[1]);
+        for ci in 0..cin {
+            for j in 0..per_group_out {
+                let out_channel = (ci / (cin / group)) * per_group_out + j;
+                for kk in 0..k * k {
+                    let at = (ci * per_group_out + j) * k * k + kk;
+                    assert!(close(folded[at], f64::from(w[at]) * scale[out_channel]), "W[{ci},{j},{kk}]");
+                }
+            }
+        }
+        let bias = tensor(&g, &g.node[0].input[2]);
+        for (c, b) in bias.iter().enumerate() {
+            assert!(close(*b, shift[c]), "bias {c}: {b} vs {}", shift[c]);
+        }
+    }
+
+    #[test]
+    fn conv_scales_output_channels_and_its_bias() {
+        // ONNX Conv: W is [M, C/group, kH, kW]; output channel m owns W[m].
+        let w: Vec<f32> = (0..3 * 2).map(|i| i as f32 - 2.5).collect();
+        let b = [0.5f32, -1.0, 2.0];
+        let mut layer = node("Conv", &["x", "w", "b"], "h", vec![]);
+        layer.input = vec!["x".into(), "w".into(), "b".into()];
+        let (mut g, scale, shift) = with_bn(layer, onnx::f32_tensor("w", &[3, 2, 1, 1], &w), 3);
+        g.initializer.push(onnx::f32_tensor("b", &[3], &b));
+        fold_batchnorm(&mut g).unwrap();
+        let folded = tensor(&g, &g.node[0].input[1]);
+        let bias = tensor(&g, &g.node[0].input[2]);
+        for m in 0..3 {
+            for i in 0..2 {
+                assert!(close(folded[m * 2 + i], f64::from(w[m * 2 + i]) * scale[m]));
+            }
+            assert!(close(bias[m], f64::from(b[m]) * scale[m] + shift[m]));
+        }
+    }
+
+    #[test]
+    fn gemm_with_transposed_weights_and_mismatches() {
+        // Gemm with transB = 1: B is [N, K]; output feature n owns row n.
+        let w: Vec<f32> = (0..2 * 3).map(|i| i as f32 * 0.5).collect();
+        let layer = node("Gemm", &["x", "w"], "h", vec![int_attr("transB", 1)]);
+        let (mut g, scale, _) = with_bn(layer, onnx::f32_tensor("w", &[2, 3], &w), 2);
+        fold_batchnorm(&mut g).unwrap();
+        let folded = tensor(&g, &g.node[0].input[1]);
+        for n in 0..2 {
+            for k in 0..3 {
+                assert!(close(folded[n * 3 + k], f64::from(w[n * 3 + k]) * scale[n]));
+            }
+        }
+        // A BatchNormalization whose channel count is not the layer's is left alone.
+        let layer = node("Conv", &["x", "w"], "h", vec![]);
+        let (mut g, _, _) = with_bn(layer, onnx::f32_tensor("w", &[3, 1, 1, 1], &[1.0, 2.0, 3.0]), 4);
+        assert!(fold_batchnorm(&mut g).unwrap().is_empty());
+        assert_eq!(g.node.len(), 2);
+        // So is one in training mode.
+        let layer = node("Conv", &["x", "w"], "h", vec![]);
+        let (mut g, _, _) = with_bn(layer, onnx::f32_tensor("w", &[3, 1, 1, 1], &[1.0, 2.0, 3.0]), 3);
+        g.node[1].attribute.push(int_attr("training_mode", 1));
+        assert!(fold_batchnorm(&mut g).unwrap().is_empty());
+    }
+}
