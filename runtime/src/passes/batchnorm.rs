@@ -213,7 +213,7 @@ mod tests {
         (g, scale, shift)
     }
 
-    fn tensor<'a>(g: &'a pb::GraphProto, name: &str) -> Vec<f32> {
+    fn tensor(g: &pb::GraphProto, name: &str) -> Vec<f32> {
         let t = g.initializer.iter().find(|t| t.name == name).unwrap_or_else(|| panic!("no {name}"));
         onnx::read_f32(t).unwrap()
     }
