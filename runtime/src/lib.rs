@@ -25,6 +25,8 @@
 #[cfg(not(target_arch = "wasm32"))]
 pub mod bench;
 pub mod check;
+#[cfg(not(target_arch = "wasm32"))]
+pub mod conformance;
 pub mod convert;
 pub mod demo;
 pub mod error;

@@ -114,7 +114,9 @@ pub(super) fn prescan(proto: &pb::ModelProto, r: &mut Recorder) -> bool {
     };
     // Ask tract's own register (what this build carries), not a copied list.
     let register = crate::onnx::framework();
-    let known = |op: &str| register.op_register.0.contains_key(op);
+    // Upsample is written as Resize by the load-time passes, so it runs although tract does not
+    // register it.
+    let known = |op: &str| register.op_register.0.contains_key(op) || op == "Upsample";
     let mut problems = vec![];
     for n in &g.node {
         let domain_ok = n.domain.is_empty() || n.domain == "ai.onnx";

@@ -224,6 +224,17 @@ impl Model {
     }
 }
 
+/// The checks every graph meets before tract sees it: operators this build carries, and the
+/// attribute rules.
+pub(crate) fn check_before_tract(proto: &pb::ModelProto) -> Result<()> {
+    let onnx = crate::onnx::framework();
+    check_operators(proto, |op| onnx.op_register.0.contains_key(op))?;
+    match proto.graph.as_ref() {
+        Some(graph) => check_attributes(graph),
+        None => Ok(()),
+    }
+}
+
 /// A model read and checked up to its ONNX graph (no tract yet): external data inlined, tensor
 /// sizes and graph wiring checked, limits enforced.
 #[derive(Debug, Clone)]

@@ -7,10 +7,7 @@ pub(super) type Built = (TypedModel, BatchAxis, Vec<InputRole>, usize, Vec<TDim>
 /// Parses with tract, fixes the input facts from the discovered inputs, and types the model.
 pub(super) fn build_typed(proto: &pb::ModelProto, found: &signature::FoundInputs) -> Result<Built> {
     let onnx = crate::onnx::framework().with_ignore_output_shapes(true).with_ignore_value_info(true);
-    check_operators(proto, |op| onnx.op_register.0.contains_key(op))?;
-    if let Some(graph) = proto.graph.as_ref() {
-        check_attributes(graph)?;
-    }
+    check_before_tract(proto)?;
     let parsed = guard("parse the model", || onnx.parse(proto, None))?;
     if !parsed.unresolved_inputs.is_empty() {
         return Err(Error::Graph {

@@ -2,7 +2,8 @@
 //! `Unsqueeze`, `Mul` and `ReduceSum`, which tract runs with its fast kernels (its own Einsum
 //! path was the slowest part of a style-based generator's modulated convolutions).
 //!
-//! The rewrite follows the definition of the operator (ONNX operator specification, Einsum, and
+//! A batched matrix product (`bmk,bkn->bmn` up to the order of the letters, the attention form)
+//! becomes `Transpose` and `MatMul`. Otherwise the rewrite follows the definition of the operator (ONNX operator specification, Einsum, and
 //! numpy.einsum): the result at each output index is the sum, over the letters missing from the
 //! output, of the product of the operands at the matching indices. So each operand is first summed
 //! over letters no one else reads, then its axes are ordered as "output letters, then summed
@@ -130,6 +131,46 @@ impl Builder<'_> {
     }
 }
 
+/// How a two-operand equation maps onto one MatMul: axis orders for each operand and for the
+/// result.
+struct MatMulForm {
+    perm_a: Vec<i64>,
+    perm_b: Vec<i64>,
+    perm_out: Vec<i64>,
+}
+
+/// Two operands whose letters are batch letters (in both and the output), exactly one letter
+/// `m` of the first and the output, one `n` of the second and the output, and one summed letter
+/// `k` of both: `bmk,bkn->bmn` up to the order of the letters, which is what exporters write
+/// for attention.
+fn matmul_form(eq: &Equation) -> Option<MatMulForm> {
+    let [a, b] = &eq.inputs[..] else { return None };
+    let out = &eq.output;
+    let only = |pred: &dyn Fn(&char) -> bool, from: &[char]| -> Vec<char> {
+        from.iter().filter(|c| pred(c)).copied().collect()
+    };
+    let batch = only(&|c| b.contains(c) && out.contains(c), a);
+    let m = only(&|c| !b.contains(c) && out.contains(c), a);
+    let n = only(&|c| !a.contains(c) && out.contains(c), b);
+    let k = only(&|c| b.contains(c) && !out.contains(c), a);
+    let private = a.iter().chain(b.iter()).any(|c| !out.contains(c) && !(a.contains(c) && b.contains(c)));
+    if m.len() != 1 || n.len() != 1 || k.len() != 1 || private {
+        return None;
+    }
+    let position = |letters: &[char], c: char| letters.iter().position(|x| *x == c).map(|p| p as i64);
+    let mut order_a: Vec<char> = batch.clone();
+    order_a.extend([m[0], k[0]]);
+    let mut order_b: Vec<char> = batch.clone();
+    order_b.extend([k[0], n[0]]);
+    let mut product: Vec<char> = batch;
+    product.extend([m[0], n[0]]);
+    Some(MatMulForm {
+        perm_a: order_a.iter().map(|&c| position(a, c)).collect::<Option<_>>()?,
+        perm_b: order_b.iter().map(|&c| position(b, c)).collect::<Option<_>>()?,
+        perm_out: out.iter().map(|&c| position(&product, c)).collect::<Option<_>>()?,
+    })
+}
+
 pub(super) fn rewrite_einsum(g: &mut pb::GraphProto, opset: i64) -> Result<Vec<String>> {
     let mut changes = vec![];
     let mut names = Names::of(g);
@@ -159,7 +200,14 @@ pub(super) fn rewrite_einsum(g: &mut pb::GraphProto, opset: i64) -> Result<Vec<S
         }
         let summed: Vec<i64> = (eq.output.len()..all.len()).map(|i| i as i64).collect();
         let mut b = Builder { names: &mut names, opset, base, nodes: vec![], initializers: vec![] };
-        let result = if eq.inputs.len() == 1 {
+        let result = if let Some(plan) = matmul_form(&eq) {
+            // A batched matrix product: MatMul on operands ordered [batch.., M, K] and
+            // [batch.., K, N], then the output order.
+            let a = b.transpose(inputs[0].clone(), &plan.perm_a);
+            let c = b.transpose(inputs[1].clone(), &plan.perm_b);
+            let product = b.node("MatMul", vec![a, c], vec![]);
+            b.transpose(product, &plan.perm_out)
+        } else if eq.inputs.len() == 1 {
             // One operand: sum the letters the output lacks, then order as the output.
             let letters = &eq.inputs[0];
             let gone: Vec<i64> = letters
@@ -228,6 +276,15 @@ mod tests {
         assert_eq!(e.inputs, vec![vec!['o', 'i', 'h', 'w'], vec!['b', 'i']]);
         assert_eq!(e.output, vec!['b', 'o', 'i', 'h', 'w']);
         assert!(parse("boihw->bo").is_some());
+        // Attention: bci,bcj->bij is MatMul([b,i,c], [b,c,j]).
+        let m = matmul_form(&parse("bci,bcj->bij").unwrap()).unwrap();
+        assert_eq!((m.perm_a, m.perm_b, m.perm_out), (vec![0, 2, 1], vec![0, 1, 2], vec![0, 1, 2]));
+        // bcj,bij->bci is MatMul([b,c,j], [b,j,i]).
+        let m = matmul_form(&parse("bcj,bij->bci").unwrap()).unwrap();
+        assert_eq!((m.perm_a, m.perm_b, m.perm_out), (vec![0, 1, 2], vec![0, 2, 1], vec![0, 1, 2]));
+        // No summed letter, or two: not one MatMul.
+        assert!(matmul_form(&parse("oihw,bi->boihw").unwrap()).is_none());
+        assert!(matmul_form(&parse("bij,bij->b").unwrap()).is_none());
         for left in ["ii->i", "bij,bjk", "...ij,...jk->...ik", "a,b,c->abc", "ij->ik", "ij->ii"] {
             assert!(parse(left).is_none(), "{left}");
         }

@@ -12,6 +12,8 @@
 //!   tract on the node alone for the rest. Random operators are never folded, and results are
 //!   bounded in size (tract's own folder skips tensors over 4 MiB, which would leave fp16 and
 //!   int8 weights to be converted on every call);
+//! - `matmul-vectors`: `MatMul` with a 1-D operand computed at run time written with matrices
+//!   (Unsqueeze, MatMul, Squeeze), numpy.matmul's semantics, which tract's MatMul lacks;
 //! - `fold-batchnorm`: folds an inference-form `BatchNormalization` into the `Conv`,
 //!   `ConvTranspose` (output channels on weight axis 1), `Gemm` or `MatMul` before it:
 //!   with `s = gamma / sqrt(var + eps)` and `t = beta - mean s`, the weights of output channel `c`
@@ -32,12 +34,14 @@ mod einsum;
 mod evaluate;
 mod fold;
 mod identity;
+mod matmul;
 mod resize;
 
 use batchnorm::fold_batchnorm;
 use einsum::rewrite_einsum;
 use fold::fold_constants;
 use identity::drop_identity;
+use matmul::{analysed_ranks, matmul_vectors, needs_analysis};
 use resize::{resize_modes, upsample_to_resize};
 
 use crate::error::{Error, Result};
@@ -113,6 +117,11 @@ pub fn run(model: &mut pb::ModelProto, options: &PassOptions) -> Result<Vec<Pass
         .map(|o| o.version)
         .unwrap_or(0);
     let opsets = model.opset_import.clone();
+    // Ranks from tract's analysis, only when a MatMul operand's rank is not in the graph.
+    let ranks = match model.graph.as_ref() {
+        Some(g) if options.fold_constants && needs_analysis(g) => analysed_ranks(model),
+        _ => HashMap::new(),
+    };
     let Some(g) = model.graph.as_mut() else { return Ok(vec![]) };
     let mut report = vec![];
     let mut step = |name: &str,
@@ -144,6 +153,7 @@ pub fn run(model: &mut pb::ModelProto, options: &PassOptions) -> Result<Vec<Pass
     }
     if options.fold_constants {
         step("fold-constants", g, &|g| fold_constants(g, &opsets))?;
+        step("matmul-vectors", g, &|g| matmul_vectors(g, opset, &ranks))?;
     }
     if options.fold_batchnorm {
         step("fold-batchnorm", g, &fold_batchnorm)?;
