@@ -153,7 +153,7 @@ fn matmul_form(eq: &Equation) -> Option<MatMulForm> {
     let m = only(&|c| !b.contains(c) && out.contains(c), a);
     let n = only(&|c| !a.contains(c) && out.contains(c), b);
     let k = only(&|c| b.contains(c) && !out.contains(c), a);
-    let private = a.iter().chain(b.iter()).any(|c| !out.contains(c) && !(a.contains(c) && b.contains(c)));
+    let private = a.iter().chain(b.iter()).any(|c| !(out.contains(c) || a.contains(c) && b.contains(c)));
     if m.len() != 1 || n.len() != 1 || k.len() != 1 || private {
         return None;
     }
