@@ -117,3 +117,37 @@ fn fuzz_find_convtranspose_padding_overflow_is_an_error() {
         }
     }
 }
+
+/// Every regression seed of the `model_bytes` fuzz target (`fuzz/corpus/model_bytes/regress-*`,
+/// each an input that once made a panic escape the genloom API) now ends in an error or in
+/// images, run as the fuzz target runs it. `regress-reshape-volume-overflow`: a Reshape whose
+/// constant shape multiplied past i64 in the constant folder.
+#[test]
+fn every_fuzz_regression_seed_ends_without_a_panic() {
+    let dir = genloom_tests::root().join("fuzz/corpus/model_bytes");
+    let mut seeds: Vec<_> = std::fs::read_dir(&dir)
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.file_name().unwrap().to_string_lossy().starts_with("regress-"))
+        .collect();
+    seeds.sort();
+    assert!(seeds.len() >= 2, "{seeds:?}");
+    for seed in seeds {
+        let bytes = std::fs::read(&seed).unwrap();
+        let mut options = LoadOptions::default();
+        options.limits.max_model_bytes = 4 << 20;
+        options.limits.max_output_pixels = 256 * 256;
+        options.limits.max_parameters = 4_000_000;
+        options.limits.max_micro_batch_bytes = 16 << 20;
+        let outcome = std::panic::catch_unwind(|| -> genloom::Result<()> {
+            let model = Model::from_bytes(&bytes, &options)?;
+            let mut o = GeneratorOptions::default();
+            o.warm_up = false;
+            let g = Generator::new(model, o)?;
+            let z = g.sample_latents(&SampleOptions::new(0, 1))?;
+            let labels = g.signature().label.as_ref().map(|_| vec![0i64]);
+            g.generate(&z, labels.as_deref()).map(|_| ())
+        });
+        assert!(outcome.is_ok(), "{}: a panic escaped the genloom API", seed.display());
+    }
+}

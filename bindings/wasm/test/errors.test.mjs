@@ -21,7 +21,7 @@ function stillWorks() {
  * `fn` throws a JS Error named GenloomError whose message matches `pattern` and whose `kind` is
  * the runtime's error kind (`kind`, when given); then the module still works.
  */
-function refuses(fn, pattern, kind) {
+function refuses(fn, pattern, kind, fromRuntime = true) {
   let caught;
   try {
     fn();
@@ -32,11 +32,13 @@ function refuses(fn, pattern, kind) {
   assert.ok(caught instanceof Error, `thrown value is not an Error: ${caught}`);
   assert.ok(!(caught instanceof WebAssembly.RuntimeError), `the module trapped: ${caught.message}`);
   assert.match(caught.message, pattern);
-  assert.equal(caught.name, "GenloomError", caught.message);
-  assert.ok(
-    ["load", "signature", "argument", "npy", "inference", "cancelled", "limits", "io"].includes(caught.kind),
-    `kind is ${caught.kind}`,
-  );
+  if (fromRuntime) {
+    assert.equal(caught.name, "GenloomError", caught.message);
+    assert.ok(
+      ["load", "signature", "argument", "npy", "inference", "cancelled", "limits", "io"].includes(caught.kind),
+      `kind is ${caught.kind}`,
+    );
+  }
   if (kind !== undefined) assert.equal(caught.kind, kind, caught.message);
   stillWorks();
   return caught.message;
@@ -142,5 +144,6 @@ test("bad seeds, counts and options are refused", (t) => {
 test("a freed generator throws a JS Error instead of trapping", () => {
   const g = new wasm.Generator(modelBytes("tiles"));
   g.free();
-  refuses(() => g.sampleLatents(1n, 1), /.+/);
+  // wasm-bindgen's own guard throws here (a null object), before genloom is reached.
+  refuses(() => g.sampleLatents(1n, 1), /.+/, undefined, false);
 });

@@ -83,6 +83,16 @@ pub(super) fn build_typed(proto: &pb::ModelProto, found: &signature::FoundInputs
     Ok((typed, batch, roles, output_index, shape, macs))
 }
 
+/// A product that is `None` on overflow (a hostile shape), so the count is unknown rather than
+/// wrong or a panic.
+fn mul(v: &[u64]) -> Option<u64> {
+    v.iter().try_fold(1u64, |a, &b| a.checked_mul(b))
+}
+
+fn vol(dims: &[u64]) -> Option<u64> {
+    mul(dims)
+}
+
 pub(super) fn count_macs(proto: &pb::ModelProto, typed: &TypedModel, batch: &BatchAxis) -> Option<u64> {
     let graph = proto.graph.as_ref()?;
     let values = match batch {
@@ -126,13 +136,13 @@ pub(super) fn count_macs(proto: &pb::ModelProto, typed: &TypedModel, batch: &Bat
                 // Each output element sums C_in/group * kH * kW products.
                 let w = shape_of(n.input.get(1)?)?;
                 let y = shape_of(n.output.first()?)?;
-                y.iter().skip(1).product::<u64>() * w.iter().skip(1).product::<u64>()
+                mul(&[vol(y.get(1..)?)?, vol(w.get(1..)?)?])?
             }
             "ConvTranspose" => {
                 // Each input element meets C_out/group * kH * kW weights.
                 let x = shape_of(n.input.first()?)?;
                 let w = shape_of(n.input.get(1)?)?;
-                x.iter().skip(1).product::<u64>() * w.iter().skip(1).product::<u64>()
+                mul(&[vol(x.get(1..)?)?, vol(w.get(1..)?)?])?
             }
             "Gemm" | "MatMul" => {
                 let a = shape_of(n.input.first()?)?;
@@ -142,11 +152,11 @@ pub(super) fn count_macs(proto: &pb::ModelProto, typed: &TypedModel, batch: &Bat
                 } else {
                     *a.last()?
                 };
-                y.iter().skip(1).product::<u64>() * k
+                mul(&[vol(y.get(1..)?)?, k])?
             }
             _ => 0,
         };
-        total += macs;
+        total = total.checked_add(macs)?;
     }
     Some(total)
 }

@@ -4,6 +4,12 @@ use super::evaluate::evaluate;
 use super::*;
 use std::collections::HashSet;
 
+/// The element count of a shape: `None` for a negative dimension (a bad or unresolved shape)
+/// or an overflow, so a hostile shape value leaves the node to the attribute checks.
+fn volume(dims: &[i64]) -> Option<i64> {
+    dims.iter().try_fold(1i64, |acc, &d| if d < 0 { None } else { acc.checked_mul(d) })
+}
+
 /// Evaluates one node whose inputs are all constant, if it is one of the ops we fold.
 fn eval_const(n: &pb::NodeProto, inputs: &[Option<&pb::TensorProto>]) -> Result<Option<pb::TensorProto>> {
     let out = n.output.first().cloned().unwrap_or_default();
@@ -84,7 +90,8 @@ fn eval_const(n: &pb::NodeProto, inputs: &[Option<&pb::TensorProto>]) -> Result<
                         }
                     }
                     if let Some(pos) = target.iter().position(|&d| d == -1) {
-                        let known: i64 = target.iter().filter(|&&d| d != -1).product();
+                        let rest: Vec<i64> = target.iter().copied().filter(|&d| d != -1).collect();
+                        let Some(known) = volume(&rest) else { return Ok(None) };
                         if known == 0 {
                             return Ok(None);
                         }
@@ -118,7 +125,7 @@ fn eval_const(n: &pb::NodeProto, inputs: &[Option<&pb::TensorProto>]) -> Result<
                     }
                 }
             };
-            if dims.iter().product::<i64>() != onnx::numel(first) as i64 {
+            if volume(&dims) != Some(onnx::numel(first) as i64) {
                 return Ok(None);
             }
             let mut t = first.clone();
