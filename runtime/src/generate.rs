@@ -223,6 +223,7 @@ impl Generator {
     }
 
     /// The batch a plan runs for `n` images: `n`, or the export's fixed batch.
+    #[cfg(not(target_arch = "wasm32"))]
     pub(crate) fn signature_batch(&self, n: usize) -> usize {
         match self.signature().batch {
             Batch::Fixed(b) => b,
@@ -231,6 +232,7 @@ impl Generator {
     }
 
     /// The plan for `batch` images (built and cached on first use).
+    #[cfg(not(target_arch = "wasm32"))]
     pub(crate) fn plans_for(&self, batch: usize) -> Result<crate::plan::Runnable> {
         self.plans.plan_for(batch)
     }
