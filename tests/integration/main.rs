@@ -15,3 +15,4 @@ mod passes;
 mod pixels_files;
 mod rng;
 mod test_models;
+mod zoo;

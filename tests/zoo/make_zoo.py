@@ -49,6 +49,7 @@ import hashlib  # noqa: E402
 import importlib.metadata  # noqa: E402
 import io  # noqa: E402
 import json  # noqa: E402
+import re  # noqa: E402
 import shutil  # noqa: E402
 import subprocess  # noqa: E402
 import tempfile  # noqa: E402
@@ -84,14 +85,19 @@ BATCH = "N"
 Z = 32  # latent size of every family
 CALIBRATION_BATCHES = 8  # x 64 latents: BatchNorm running statistics
 CALIBRATION_BATCH = 64
-# Reference samples per family. 8 wherever the budget allows; the 64x64 and 128x128 families get
-# fewer, because 8 RGB 128x128 float32 images are 1.5 MiB per array and each family has three
-# arrays (PyTorch + one per exporter) while the whole folder must stay under 4 MiB.
+# Reference samples per family: 8 for the 32x32 families; one for dcgan64 and dcgan128, because
+# 8 RGB 128x128 float32 images are 1.5 MiB per array, each family has three arrays (PyTorch + one
+# per exporter), and the whole folder must stay under 4 MiB (README.md, "Size").
 DEFAULT_COUNT = 8
 
 # Declared value range of each output ([lo, hi]; None = unbounded).
 TANH = [-1.0, 1.0]
 SIGMOID = [0.0, 1.0]
+
+# A range for genloom's gate where the model declares none (stylegen: no output activation).
+# genloom refuses a model whose range it cannot tell; [-4, 4] holds stylegen's outputs (manifest
+# families.stylegen.spread_64) with room. Written to the manifest as `check_range`.
+CHECK_RANGE_UNBOUNDED = [-4.0, 4.0]
 
 # The ONNX equality tolerance the script asserts between PyTorch and the reference evaluator
 # (except where an exporter changes the maths on purpose: the opset-9 bilinear Upsample).
@@ -200,7 +206,8 @@ def graph_inputs(model):
 
 def rename_batch_dim(model: onnx.ModelProto, name: str = BATCH) -> None:
     """Give the symbolic first axis of every graph input/output one name ("N"), as
-    models-demo/export.py does; the dynamo exporter calls it after its own symbol (s0, s77...)."""
+    models-demo/export.py does (torch 2.15's default exporter already uses the Dim's name, "N";
+    this keeps the files right if an exporter names it after its own symbol, s0 or s77)."""
     old = set()
     for vi in list(model.graph.input) + list(model.graph.output):
         dim = vi.type.tensor_type.shape.dim[0]
@@ -233,11 +240,17 @@ class Upsample(OpRun):
         node = helper.make_node("Resize", ["x", "", "scales"], ["y"], mode=mode,
                                 coordinate_transformation_mode="asymmetric", nearest_mode="floor")
         elem = helper.np_dtype_to_tensor_dtype(x.dtype)
-        graph = helper.make_graph([node], "upsample", [helper.make_tensor_value_info("x", elem, None),
-                                                       helper.make_tensor_value_info("scales", TensorProto.FLOAT, None)],
-                                  [helper.make_tensor_value_info("y", elem, None)])
+        inputs = [helper.make_tensor_value_info("x", elem, None),
+                  helper.make_tensor_value_info("scales", TensorProto.FLOAT, None)]
+        graph = helper.make_graph([node], "upsample", inputs, [helper.make_tensor_value_info("y", elem, None)])
         resize = helper.make_model(graph, opset_imports=[helper.make_opsetid("", 13)])
         return (ReferenceEvaluator(resize).run(None, {"x": x, "scales": scales})[0],)
+
+
+UPSAMPLE_NOTE = ("reference evaluator run with one operator supplied, Upsample (make_zoo.py class Upsample): "
+                 "onnx 1.23.2's own reference Upsample raises for mode 'linear' and for the opset-7 "
+                 "`scales` attribute; the supplied one is the evaluator's Resize with "
+                 "coordinate_transformation_mode 'asymmetric' (x_in = x_out / scale), nearest_mode 'floor'")
 
 
 def reference_run(model: onnx.ModelProto, feeds: dict) -> np.ndarray:
@@ -253,8 +266,8 @@ def max_abs_diff(a: np.ndarray, b: np.ndarray) -> float:
     b = np.asarray(b, dtype=np.float64)
     if a.shape != b.shape:
         return float("inf")
-    d = np.abs(a - b)
-    d[np.isnan(d)] = np.inf
+    d = np.atleast_1d(np.abs(a - b))
+    d[np.isnan(d)] = np.inf  # NaN against a number counts as infinitely far
     return float(d.max()) if d.size else 0.0
 
 
@@ -551,11 +564,11 @@ def build_families():
     #        target std of the pre-activation output, reference count, exporters, description)
     fams = {
         "dcgan64": dict(make=lambda: DCGAN([8, 8, 8, 8]), seed=101, zshape=(Z, 1, 1), labels=False,
-                        range=TANH, pre_std=0.6, count=2, size=64,
+                        range=TANH, pre_std=0.6, count=1, size=64,
                         what="DCGAN-style ConvTranspose + BatchNorm + ReLU stack, Tanh, 64x64 RGB"),
         "dcgan128": dict(make=lambda: DCGAN([8, 8, 8, 8, 8]), seed=102, zshape=(Z, 1, 1), labels=False,
                          range=TANH, pre_std=0.6, count=1, size=128,
-                         what="DCGAN-style stack at 128x128, 8 channels, Tanh, 128x128 RGB"),
+                         what="DCGAN-style ConvTranspose + BatchNorm + ReLU stack, 8 channels, Tanh, 128x128 RGB"),
         "resgen": dict(make=ResGen, seed=103, zshape=(Z,), labels=True, range=TANH, pre_std=0.6,
                        count=DEFAULT_COUNT, size=32,
                        what="residual generator: class-conditional BatchNorm from a label embedding and "
@@ -717,9 +730,17 @@ def strip_node_metadata(model: onnx.ModelProto) -> None:
 
 
 def error_text(exc: BaseException) -> str:
-    """The exception as recorded in the manifest: its type and message (the exporters' messages
-    can be long; the first 40 lines are kept)."""
-    lines = f"{type(exc).__name__}: {exc}".splitlines()
+    """The exception as recorded in the manifest: its type and message, without the Python stack
+    the legacy exporter appends ("(node defined in ...") and without machine paths or this
+    script's line numbers (TorchScript's "# FILE:LINE:COL" source notes are dropped, other paths
+    cut to the part after site-packages/ or the repository), so the text is the same on every
+    machine and after edits to this script. At most 40 lines."""
+    text = f"{type(exc).__name__}: {exc}"
+    text = text.split("\n    (node defined in")[0]
+    text = re.sub(r"\s+# [^\s()']+\.py:\d+:\d+", "", text)
+    text = re.sub(r"[^\s'\"(]*/site-packages/", "", text)
+    text = text.replace(str(HERE.parent.parent) + os.sep, "")
+    lines = [ln.rstrip() for ln in text.splitlines()]
     return "\n".join(lines[:40]) + ("\n[...]" if len(lines) > 40 else "")
 
 
@@ -838,13 +859,17 @@ def make_family(name, fam, index, out: Path, torch, log):
             "inputs": [value_info_json(v) for v in graph_inputs(loaded)],
             "outputs": [value_info_json(v) for v in loaded.graph.output],
             "declared_range": fam["range"],
+            "check_range": fam["range"] if fam["range"] is not None else CHECK_RANGE_UNBOUNDED,
             "reference": f"{name}-{exporter}.onnxref.npy",
             "max_abs_diff_torch_vs_onnxref": diff,
             "bytes": path.stat().st_size,
             "sha256": sha256(path),
+            "source": source_string(),
         })
         if notes:
             entry["exporter_warnings"] = notes
+        if "Upsample" in ops:
+            entry["reference_note"] = UPSAMPLE_NOTE
         if exporter == "op9" and "bilinear" in name:
             entry["note"] = ("opset 9 has no half-pixel resampling: Upsample mode 'linear' maps output to input "
                              "coordinates as x_out / scale (asymmetric), where PyTorch's align_corners=False "
@@ -1053,7 +1078,11 @@ def make_patterns(out: Path, export_equations: dict, log) -> dict:
             "output": {"file": f"{name}.onnxref.npy", "shape": list(out_arr.shape)},
             "bytes": path.stat().st_size,
             "sha256": sha256(path),
+            "source": ("onnx.helper (graph), onnx.reference.ReferenceEvaluator (output), "
+                       "numpy default_rng(77) (inputs); " + source_string()),
         }
+        if "Upsample" in entry["ops"]:
+            entry["reference_note"] = UPSAMPLE_NOTE
         eqs = einsum_equations(loaded)
         if eqs:
             entry["einsum_equations"] = eqs
@@ -1099,14 +1128,38 @@ def generate(out: Path, log, only=None, patterns=True) -> dict:
     if patterns:
         log("patterns:")
         manifest["patterns"] = make_patterns(out, equations, log)
-    (out / "manifest.json").write_text(json.dumps(manifest, indent=1, sort_keys=True) + "\n")
+    text = json.dumps(manifest, indent=1, sort_keys=True) + "\n"
+    for marker in (str(HERE.parent.parent), str(out), "site-packages"):
+        assert marker not in text, f"manifest.json holds a machine path ({marker})"
+    (out / "manifest.json").write_text(text)
     log(f"done in {time.perf_counter() - t0:.1f} s")
     return manifest
 
 
+def regenerate_in_place(log) -> None:
+    """Generate into a temporary folder, then put each file in place by copying it to
+    `NAME.tmp` (git ignores *.tmp) beside its target and renaming, and delete the files the
+    script no longer writes: the zoo is never half-written for long, no file is ever partly
+    written, and the hand-written files are never touched."""
+    with tempfile.TemporaryDirectory(prefix="genloom-zoo-") as tmp:
+        tmp = Path(tmp)
+        generate(tmp, log)
+        new = generated_files(tmp)
+        old = generated_files(HERE)
+        for rel in sorted(new):
+            target = HERE / rel
+            target.parent.mkdir(parents=True, exist_ok=True)
+            staging = target.with_name(target.name + ".tmp")
+            shutil.copyfile(tmp / rel, staging)
+            os.replace(staging, target)
+        for rel in sorted(old - new):
+            (HERE / rel).unlink()
+
+
 def generated_files(root: Path) -> set:
     return {str(p.relative_to(root)) for p in root.rglob("*")
-            if p.is_file() and p.name not in HAND_WRITTEN and "__pycache__" not in p.parts}
+            if p.is_file() and p.name not in HAND_WRITTEN and "__pycache__" not in p.parts
+            and not p.name.endswith(".tmp")}
 
 
 def onnx_weight_diff(a: Path, b: Path):
@@ -1187,12 +1240,6 @@ def check(log) -> int:
         return 1 if bad else 0
 
 
-# `genloom check` needs a value range; stylegen declares none (no output activation), so the try
-# passes this one after recording the refusal (its PyTorch outputs over 64 latents: manifest
-# families.stylegen.spread_64).
-STYLEGEN_CHECK_RANGE = "-4,4"
-
-
 def _run_timed(cmd):
     """Run under /usr/bin/time -f %e; return (exit code, stdout, stderr without the time line, seconds)."""
     r = subprocess.run(["/usr/bin/time", "-f", "%e"] + cmd, capture_output=True, text=True)
@@ -1235,8 +1282,9 @@ def try_genloom(binary: str, root: Path, log) -> int:
         note = ""
         code, out, err, _ = _run_timed([binary, "inspect", path])
         if code != 0 and entry["declared_range"] is None:
-            note = f"without `--range`: {' '.join(rel(err).split())} With `--range={STYLEGEN_CHECK_RANGE}`: "
-            extra = [f"--range={STYLEGEN_CHECK_RANGE}"]
+            lo, hi = entry["check_range"]
+            extra = [f"--range={lo:g},{hi:g}"]
+            note = f"without `--range`: {' '.join(rel(err).split())} With `{extra[0]}`: "
             code, out, err, _ = _run_timed([binary, "inspect", path] + extra)
         loads = "yes" if code == 0 else "no: " + " ".join(rel(err).split())
         if code == 0:
@@ -1277,16 +1325,16 @@ def main() -> int:
             print(p, file=sys.stderr)
         print("install tests/zoo/requirements.txt or pass --ignore-versions", file=sys.stderr)
         return 2
+    if args.only and not args.out:
+        ap.error("--only needs --out (it writes a partial manifest)")
     if args.check:
         return check(print)
-    out = args.out or HERE
-    if out.resolve() == HERE and not args.only:
-        # regenerate in place: drop everything the script wrote before (never the hand-written files)
-        for rel in generated_files(HERE):
-            (HERE / rel).unlink()
     t0 = time.perf_counter()
     try:
-        generate(out, print, only=args.only)
+        if args.out:
+            generate(args.out, print, only=args.only)
+        else:
+            regenerate_in_place(print)
     except Exception:
         traceback.print_exc()
         return 1
