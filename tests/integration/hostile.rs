@@ -151,3 +151,27 @@ fn every_fuzz_regression_seed_ends_without_a_panic() {
         assert!(outcome.is_ok(), "{}: a panic escaped the genloom API", seed.display());
     }
 }
+
+/// Padding larger than a transposed convolution's output (ONNX ConvTranspose: output =
+/// stride (in - 1) + kernel - pads, here 2 * 3 + 4 - 18 = -8) is named from tract's shape
+/// analysis, before typing, where tract would assert (a panic; fatal in the web build).
+#[test]
+fn padding_that_leaves_a_negative_size_is_named_before_tract_types_the_model() {
+    let mut p = good();
+    let g = p.graph.as_mut().unwrap();
+    let ct = g.node.iter_mut().find(|n| n.op_type == "ConvTranspose").unwrap();
+    for a in &mut ct.attribute {
+        if a.name == "pads" {
+            a.ints = vec![9, 9, 9, 9];
+        }
+    }
+    let e = Model::from_bytes(&p.encode_to_vec(), &LoadOptions::default()).unwrap_err();
+    assert!(matches!(e, Error::Attribute { .. }), "{e:?}");
+    let msg = e.to_string();
+    assert!(
+        msg.starts_with(
+            "node `up` (ConvTranspose): pads is [9, 9, 9, 9], which leaves spatial axis 0 -8 pixels"
+        ),
+        "{msg}"
+    );
+}

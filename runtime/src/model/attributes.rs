@@ -112,10 +112,13 @@ fn check_window(
     let kernel_attr = attr(n, "kernel_shape").map(|a| a.ints.clone());
     let rank = match (weight, &kernel_attr) {
         (Some(w), _) => {
-            if w.dims.len() < 3 {
+            if w.dims.len() < 3 || w.dims.iter().any(|&d| d < 1) {
                 return Err(fail(
                     "W (input 1)",
-                    format!("has shape {:?}; expected [M, C/group, k1, ...], at least 3 axes", w.dims),
+                    format!(
+                        "has shape {:?}; expected [M, C/group, k1, ...], at least 3 axes, none empty",
+                        w.dims
+                    ),
                 ));
             }
             Some(w.dims.len() - 2)

@@ -13,6 +13,7 @@ mod validate;
 
 pub(crate) use crate::guard::{guard, guard_run};
 use attributes::check_attributes;
+pub(crate) use attributes::MAX_DIM;
 use external::resolve_external_data;
 pub(crate) use limits::check_limit;
 pub use limits::Limits;

@@ -67,6 +67,12 @@ pub(super) fn build_typed(proto: &pb::ModelProto, found: &signature::FoundInputs
         .ok_or_else(|| Error::Signature {
             reason: format!("output `{}` is not among tract's outputs", found.output),
         })?;
+    // Shapes first, in tract's inference form, where a dimension is a symbolic integer that can
+    // go negative without harm: a negative or huge one (a padding larger than the picture, a
+    // hostile Reshape) is named here, because typing turns it into an assertion inside tract.
+    guard("analyse the model's shapes", || model.analyse(false))?;
+    check_dimensions(&model)?;
+    check_transposed_convolutions(proto, &model)?;
     let typed = guard("type the model (infer every shape and type)", || model.into_typed())?;
     let out = typed.output_outlets().map_err(|e| Error::tract("list the outputs", e))?[output_index];
     let fact = typed.outlet_fact(out).map_err(|e| Error::tract("read the output fact", e))?;
@@ -81,6 +87,90 @@ pub(super) fn build_typed(proto: &pb::ModelProto, found: &signature::FoundInputs
     let shape: Vec<TDim> = fact.shape.iter().cloned().collect();
     let macs = count_macs(proto, &typed, &batch);
     Ok((typed, batch, roles, output_index, shape, macs))
+}
+
+/// Every dimension tract's shape analysis could settle is between 0 and [`super::MAX_DIM`].
+fn check_dimensions(model: &InferenceModel) -> Result<()> {
+    use tract_onnx::tract_hir::infer::Factoid;
+    for node in model.nodes() {
+        for (slot, output) in node.outputs.iter().enumerate() {
+            let Some(dims) = output.fact.shape.concretize() else { continue };
+            for d in dims.iter() {
+                let Ok(v) = d.to_i64() else { continue };
+                if !(0..=super::MAX_DIM).contains(&v) {
+                    return Err(Error::Graph {
+                        reason: format!(
+                            "node `{}` ({}) would make output {slot} of shape {:?}: a dimension of {v}, \
+                             outside 0 to {}; its attributes or shape inputs do not fit its input",
+                            node.name,
+                            node.op.name(),
+                            dims,
+                            super::MAX_DIM
+                        ),
+                    });
+                }
+            }
+        }
+    }
+    Ok(())
+}
+
+/// Each ConvTranspose without `output_shape` makes an output of at least one pixel a side,
+/// by the ONNX operator specification's formula: `stride (in - 1) + output_padding +
+/// (kernel - 1) dilation + 1 - pad_begin - pad_end`, with `in` from tract's shape analysis.
+fn check_transposed_convolutions(proto: &pb::ModelProto, model: &InferenceModel) -> Result<()> {
+    use tract_onnx::tract_hir::infer::Factoid;
+    let Some(graph) = proto.graph.as_ref() else { return Ok(()) };
+    let consts = crate::onnx::constants(graph);
+    for n in graph.node.iter().filter(|n| n.op_type == "ConvTranspose") {
+        let auto_pad = crate::onnx::attr(n, "auto_pad").map(|a| String::from_utf8_lossy(&a.s).into_owned());
+        if crate::onnx::attr(n, "output_shape").is_some()
+            || auto_pad.is_some_and(|p| p != "NOTSET" && !p.is_empty())
+        {
+            continue;
+        }
+        let Some(w) = n.input.get(1).and_then(|w| consts.get(w.as_str())) else { continue };
+        let Ok(node) = model.node_by_name(&n.name) else { continue };
+        let Some(input) = node.inputs.first() else { continue };
+        let Ok(fact) = model.outlet_fact(*input) else { continue };
+        let Some(shape) = fact.shape.concretize() else { continue };
+        let rank = w.dims.len().saturating_sub(2);
+        if shape.len() != rank + 2 {
+            continue;
+        }
+        let ints = |name: &str, default: i64, len: usize| {
+            crate::onnx::attr_ints(n, name).filter(|v| v.len() == len).unwrap_or_else(|| vec![default; len])
+        };
+        let (strides, dilations, pads, adjust) = (
+            ints("strides", 1, rank),
+            ints("dilations", 1, rank),
+            ints("pads", 0, 2 * rank),
+            ints("output_padding", 0, rank),
+        );
+        for axis in 0..rank {
+            let Ok(input) = shape[axis + 2].to_i64() else { continue };
+            let field = (w.dims[axis + 2] - 1).saturating_mul(dilations[axis]).saturating_add(1);
+            let out = strides[axis]
+                .saturating_mul(input - 1)
+                .saturating_add(adjust[axis])
+                .saturating_add(field)
+                .saturating_sub(pads[axis])
+                .saturating_sub(pads[axis + rank]);
+            if out < 1 {
+                return Err(Error::Attribute {
+                    node: n.name.clone(),
+                    op_type: n.op_type.clone(),
+                    attribute: "pads".into(),
+                    reason: format!(
+                        "is {pads:?}, which leaves spatial axis {axis} {out} pixels for an input of {input} \
+                         (stride {} (in - 1) + output_padding {} + window {field} - pads); expected at least 1",
+                        strides[axis], adjust[axis]
+                    ),
+                });
+            }
+        }
+    }
+    Ok(())
 }
 
 /// A product that is `None` on overflow (a hostile shape), so the count is unknown rather than
