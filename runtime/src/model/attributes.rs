@@ -61,6 +61,13 @@ pub(super) fn check_attributes(graph: &pb::GraphProto) -> Result<()> {
                 check_shape_input(n, 0, 0, &consts).map_err(|r| fail("input (the shape)", r))?
             }
             "Resize" | "Upsample" => check_resize(n, &consts, &fail)?,
+            // ONNX Swish is x * sigmoid(alpha x); tract 0.23 builds it as x * sigmoid(x) and
+            // never reads alpha (found by the operator conformance run, docs/conformance.md).
+            "Swish" => {
+                if let Some(a) = attr(n, "alpha").filter(|a| a.f != 1.0) {
+                    return Err(fail("alpha", format!("is {}, which genloom cannot run; supported: 1", a.f)));
+                }
+            }
             _ => {}
         }
     }
@@ -392,5 +399,12 @@ mod tests {
         assert_eq!(attribute_of(check_attributes(&g).unwrap_err()), "scales");
         let g = graph("Resize", &["x"], vec![text("mode", "area")], vec![]);
         assert_eq!(attribute_of(check_attributes(&g).unwrap_err()), "mode");
+        let alpha =
+            |v: f32| pb::AttributeProto { name: "alpha".into(), r#type: 1, f: v, ..Default::default() };
+        assert_eq!(
+            attribute_of(check_attributes(&graph("Swish", &["x"], vec![alpha(0.5)], vec![])).unwrap_err()),
+            "alpha"
+        );
+        check_attributes(&graph("Swish", &["x"], vec![alpha(1.0)], vec![])).unwrap();
     }
 }
