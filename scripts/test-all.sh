@@ -57,6 +57,9 @@ step "cargo test (unit, integration, CLI, doc tests)"
 cargo test --workspace --all-targets
 cargo test --workspace --doc
 
+step "operator conformance: the onnx package's node cases through the passes and tract"
+GENLOOM_CONFORMANCE_PAGE=target/conformance.md PYTHON="$PY" bash tests/conformance/run.sh
+
 step "C ABI: C programs against the library, under valgrind and AddressSanitizer"
 bash scripts/test-c.sh
 
