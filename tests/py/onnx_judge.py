@@ -109,6 +109,10 @@ def judge_export(export_path, source_path, latents_path, labels_path, output_pat
             if not np.array_equal(w.astype(np.float16).view(np.uint16), inits[node.input[0]].view(np.uint16)):
                 fail("%s: float16 weights differ from numpy.float16 of the source" % node.name)
             checked += 1
+    stored_small = [n for n, v in inits.items() if v.dtype in (np.int8, np.float16)]
+    if stored_small and checked == 0:
+        fail("%d int8 or float16 tensors (%s ...) but none reached through DequantizeLinear or Cast"
+             % (len(stored_small), stored_small[0]))
     print("ok: checker, reference evaluator (max err %.3g), %d rewritten tensors" % (err, checked))
 
 
