@@ -60,6 +60,9 @@ cargo test --workspace --doc
 step "operator conformance: the onnx package's node cases through the passes and tract"
 GENLOOM_CONFORMANCE_PAGE=target/conformance.md PYTHON="$PY" bash tests/conformance/run.sh
 
+step "Python package: pip install ./bindings/python, then pytest (scripts/test-python.sh)"
+PYTHON="$PY" bash scripts/test-python.sh
+
 step "C ABI: C programs against the library, under valgrind and AddressSanitizer"
 bash scripts/test-c.sh
 
