@@ -175,3 +175,32 @@ fn padding_that_leaves_a_negative_size_is_named_before_tract_types_the_model() {
         "{msg}"
     );
 }
+
+/// The two tract panics a replay of the long fuzz run's corpus still reached, now named before
+/// tract: a raw tensor of an element type tract's loader does not read (bfloat16, ONNX data
+/// type 16), and a ConvTranspose `output_shape` smaller than its input makes (tract derives a
+/// negative output padding from it).
+#[test]
+fn raw_tensors_tract_cannot_read_and_unreachable_output_shapes_are_named() {
+    let mut p = good();
+    let g = p.graph.as_mut().unwrap();
+    let bias = g.initializer.iter_mut().find(|t| t.name == "up.bias").unwrap();
+    bias.data_type = 16;
+    bias.raw_data = vec![0; 3 * 2];
+    bias.float_data.clear();
+    let e = Model::from_bytes(&p.encode_to_vec(), &LoadOptions::default()).unwrap_err();
+    assert!(e.to_string().contains("tensor `up.bias` stores bfloat16 as raw bytes"), "{e}");
+
+    let mut p = good();
+    let g = p.graph.as_mut().unwrap();
+    let ct = g.node.iter_mut().find(|n| n.op_type == "ConvTranspose").unwrap();
+    ct.attribute.push(tract_onnx::pb::AttributeProto {
+        name: "output_shape".into(),
+        r#type: 7,
+        ints: vec![2, 2],
+        ..Default::default()
+    });
+    let e = Model::from_bytes(&p.encode_to_vec(), &LoadOptions::default()).unwrap_err();
+    assert!(matches!(e, Error::Attribute { .. }), "{e:?}");
+    assert!(e.to_string().contains("output_shape asks for 2 on spatial axis 0"), "{e}");
+}

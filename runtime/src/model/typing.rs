@@ -115,7 +115,8 @@ fn check_dimensions(model: &InferenceModel) -> Result<()> {
     Ok(())
 }
 
-/// Each ConvTranspose without `output_shape` makes an output of at least one pixel a side,
+/// Each ConvTranspose makes an output of at least one pixel a side (and, given `output_shape`,
+/// one its padding can reach),
 /// by the ONNX operator specification's formula: `stride (in - 1) + output_padding +
 /// (kernel - 1) dilation + 1 - pad_begin - pad_end`, with `in` from tract's shape analysis.
 fn check_transposed_convolutions(proto: &pb::ModelProto, model: &InferenceModel) -> Result<()> {
@@ -124,11 +125,10 @@ fn check_transposed_convolutions(proto: &pb::ModelProto, model: &InferenceModel)
     let consts = crate::onnx::constants(graph);
     for n in graph.node.iter().filter(|n| n.op_type == "ConvTranspose") {
         let auto_pad = crate::onnx::attr(n, "auto_pad").map(|a| String::from_utf8_lossy(&a.s).into_owned());
-        if crate::onnx::attr(n, "output_shape").is_some()
-            || auto_pad.is_some_and(|p| p != "NOTSET" && !p.is_empty())
-        {
+        if auto_pad.is_some_and(|p| p != "NOTSET" && !p.is_empty()) {
             continue;
         }
+        let output_shape = crate::onnx::attr_ints(n, "output_shape");
         let Some(w) = n.input.get(1).and_then(|w| consts.get(w.as_str())) else { continue };
         let Ok(node) = model.node_by_name(&n.name) else { continue };
         let Some(input) = node.inputs.first() else { continue };
@@ -156,6 +156,24 @@ fn check_transposed_convolutions(proto: &pb::ModelProto, model: &InferenceModel)
                 .saturating_add(field)
                 .saturating_sub(pads[axis])
                 .saturating_sub(pads[axis + rank]);
+            if let Some(&wanted) = output_shape.as_ref().and_then(|o| o.get(axis)) {
+                // With output_shape, tract derives the output padding from it:
+                // output_shape + pads - stride (in - 1) - window, which must not be negative.
+                let needed = strides[axis].saturating_mul(input - 1).saturating_add(field);
+                if wanted.saturating_add(pads[axis]).saturating_add(pads[axis + rank]) < needed {
+                    return Err(Error::Attribute {
+                        node: n.name.clone(),
+                        op_type: n.op_type.clone(),
+                        attribute: "output_shape".into(),
+                        reason: format!(
+                            "asks for {wanted} on spatial axis {axis}, fewer than the {needed} pixels \
+                             stride {} (in - 1) + window {field} makes of an input of {input} (less the pads {:?})",
+                            strides[axis], pads
+                        ),
+                    });
+                }
+                continue;
+            }
             if out < 1 {
                 return Err(Error::Attribute {
                     node: n.name.clone(),

@@ -11,6 +11,18 @@ pub(super) fn check_tensors(graph: &pb::GraphProto) -> Result<(u64, u64)> {
     for_each_tensor(graph, &mut |t| {
         let n = element_count(t)?;
         let held = if !t.raw_data.is_empty() {
+            // tract reads raw bytes of these element types only (tract-onnx's tensor loader).
+            const RAW_READABLE: &[i32] = &[1, 2, 3, 4, 5, 6, 7, 9, 10, 11, 12, 13];
+            if !RAW_READABLE.contains(&t.data_type) {
+                return Err(Error::Graph {
+                    reason: format!(
+                        "tensor `{}` stores {} as raw bytes, which genloom cannot read (it reads float, \
+                         float16, double, int8 to int64, uint8 to uint64 and bool)",
+                        t.name,
+                        dtype_name(t.data_type)
+                    ),
+                });
+            }
             let Some(size) = elem_size(t.data_type) else { return Ok(()) };
             let expected = n.saturating_mul(size as u64);
             if t.raw_data.len() as u64 != expected {
