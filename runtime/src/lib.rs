@@ -42,6 +42,7 @@ pub mod passes;
 pub mod pixels;
 mod plan;
 pub mod probe;
+mod rules;
 pub mod signature;
 
 pub use convert::{ConvertOptions, ConvertReport, Export, Precision};

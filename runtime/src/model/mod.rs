@@ -4,7 +4,6 @@
 //! data safely, checks the graph, parses it with tract, discovers the signature and reports what
 //! the model is made of ([`ModelInfo`]). A [`crate::Generator`] is built from a [`Model`].
 
-mod attributes;
 mod external;
 mod limits;
 mod sniffing;
@@ -12,8 +11,8 @@ mod typing;
 mod validate;
 
 pub(crate) use crate::guard::{guard, guard_run};
-use attributes::check_attributes;
-pub(crate) use attributes::MAX_DIM;
+use crate::rules::check_attributes;
+pub(crate) use crate::rules::MAX_DIM;
 use external::resolve_external_data;
 pub(crate) use limits::check_limit;
 pub use limits::Limits;

@@ -84,6 +84,25 @@ pub(super) fn evaluate(
     if !n.domain.is_empty() && n.domain != "ai.onnx" {
         return Ok(None);
     }
+    // The node alone must meet the attribute rules before tract sees it (tract trusts them).
+    let alone = pb::GraphProto {
+        node: vec![n.clone()],
+        initializer: n
+            .input
+            .iter()
+            .zip(inputs)
+            .filter_map(|(name, t)| t.map(|t| pb::TensorProto { name: name.clone(), ..t.clone() }))
+            .collect(),
+        ..Default::default()
+    };
+    if crate::rules::check_attributes(&alone).is_err() {
+        return Ok(None);
+    }
+    // A transposed convolution's output size depends on attributes tract does not check against
+    // its input: left for the load's shape checks, which name the node.
+    if n.op_type == "ConvTranspose" {
+        return Ok(None);
+    }
     match growth_bound(n, inputs) {
         Some(b) if b <= MAX_FOLDED_ELEMENTS => {}
         _ => return Ok(None),

@@ -12,8 +12,10 @@
 //! The same place names attribute values that tract does not implement (a `Resize` mode it lacks),
 //! so a user learns which node and what is supported instead of reading tract's parser error.
 
-use super::*;
+use crate::error::{Error, Result};
 use crate::onnx::{attr, constants, read_f32, read_i64};
+use std::collections::HashMap;
+use tract_onnx::pb;
 
 /// The largest dimension a shape value may hold: 2^31 - 1. No image generator comes near it, and
 /// it keeps tract's products of dimensions inside `i64`.
@@ -35,7 +37,7 @@ const RESIZE_NEAREST: &[&str] = &["floor", "round_prefer_ceil"];
 
 /// Checks every node of the graph (not into subgraphs, which tract parses the same way when it
 /// reaches them) against the rules of this module.
-pub(super) fn check_attributes(graph: &pb::GraphProto) -> Result<()> {
+pub(crate) fn check_attributes(graph: &pb::GraphProto) -> Result<()> {
     let consts = constants(graph);
     for (ix, n) in graph.node.iter().enumerate() {
         let node = || if n.name.is_empty() { format!("#{ix}") } else { n.name.clone() };
