@@ -121,6 +121,10 @@ def export_dynamo(model: torch.nn.Module, name: str) -> tuple[Path, Path]:
         if p.name != path.name:
             p.unlink()
     _rename_batch_dim(m)
+    # The exporter records each node's Python stack trace and class path in metadata_props,
+    # machine paths included: drop them, so the file names nothing of the machine it came from.
+    for node in m.graph.node:
+        del node.metadata_props[:]
     # onnx checks whether `location` already exists relative to the working directory, not to
     # the model file, so save from the output folder
     with contextlib.chdir(OUT):
