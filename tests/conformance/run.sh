@@ -15,7 +15,11 @@ folder="${1:-target/conformance-cases}"
 python="${PYTHON:-python3}"
 start=$(date +%s)
 "$python" tests/conformance/write_cases.py "$folder"
-cargo run -p genloom-tests --example conformance -- "$folder" target/conformance-results.json
+# Built with the whole workspace selected, so its dependencies resolve the same features as
+# `cargo test --workspace --all-targets` and that build of tract is reused (with `-p` alone,
+# cargo unifies features over fewer packages and compiles tract again).
+cargo build --workspace --examples
+target/debug/examples/conformance "$folder" target/conformance-results.json
 end=$(date +%s)
 page="${GENLOOM_CONFORMANCE_PAGE:-docs/conformance.md}"
 "$python" tests/conformance/table.py target/conformance-results.json "$page" \
