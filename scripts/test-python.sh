@@ -17,7 +17,7 @@ if ! "$PYTHON" -c 'import numpy' 2>/dev/null; then
 fi
 
 # The command the tests compare with (fresh after `cargo test --workspace`).
-cargo build --quiet --workspace --bins
+cargo build --quiet --workspace --all-targets
 
 if [[ ${GENLOOM_PY_REINSTALL:-1} != 0 ]] || ! "$PYTHON" -c 'import genloom._native' 2>/dev/null; then
   start=$(date +%s)
