@@ -79,6 +79,25 @@ fn eight_threads_share_one_generator() {
     }
 }
 
+/// Model bytes run as the `model_bytes` fuzz target runs them (its small limits; load, build
+/// without warm-up, one image of class 0): `Err` when a panic escaped the genloom API.
+fn as_the_fuzz_target_runs(bytes: &[u8]) -> std::thread::Result<genloom::Result<()>> {
+    let mut options = LoadOptions::default();
+    options.limits.max_model_bytes = 4 << 20;
+    options.limits.max_output_pixels = 256 * 256;
+    options.limits.max_parameters = 4_000_000;
+    options.limits.max_micro_batch_bytes = 16 << 20;
+    std::panic::catch_unwind(|| {
+        let model = Model::from_bytes(bytes, &options)?;
+        let mut o = GeneratorOptions::default();
+        o.warm_up = false;
+        let g = Generator::new(model, o)?;
+        let z = g.sample_latents(&SampleOptions::new(0, 1))?;
+        let labels = g.signature().label.as_ref().map(|_| vec![0i64]);
+        g.generate(&z, labels.as_deref()).map(|_| ())
+    })
+}
+
 /// A fuzz find (`model_bytes`, about 1.0 million executions): tract's ConvTranspose padding
 /// arithmetic overflowed while the fixed-batch plan was built, outside the panic guard, so the
 /// panic escaped `Generator::generate`. Run as the fuzz target runs it: it must end in an error,
@@ -91,20 +110,7 @@ fn fuzz_find_convtranspose_padding_overflow_is_an_error() {
         genloom_tests::root().join("fuzz/corpus/model_bytes/regress-convtranspose-padding-overflow"),
     )
     .unwrap();
-    let mut options = LoadOptions::default();
-    options.limits.max_model_bytes = 4 << 20;
-    options.limits.max_output_pixels = 256 * 256;
-    options.limits.max_parameters = 4_000_000;
-    options.limits.max_micro_batch_bytes = 16 << 20;
-    let outcome = std::panic::catch_unwind(|| {
-        let model = Model::from_bytes(&bytes, &options)?;
-        let mut o = GeneratorOptions::default();
-        o.warm_up = false;
-        let g = Generator::new(model, o)?;
-        let z = g.sample_latents(&SampleOptions::new(0, 1))?;
-        let labels = g.signature().label.as_ref().map(|_| vec![0i64]);
-        g.generate(&z, labels.as_deref()).map(|_| ())
-    });
+    let outcome = as_the_fuzz_target_runs(&bytes);
     match outcome {
         Err(_) => panic!("a tract panic escaped the genloom API"),
         Ok(Ok(())) => panic!("the fuzz find loaded and generated; expected its zero stride to be refused"),
@@ -134,20 +140,7 @@ fn every_fuzz_regression_seed_ends_without_a_panic() {
     assert!(seeds.len() >= 2, "{seeds:?}");
     for seed in seeds {
         let bytes = std::fs::read(&seed).unwrap();
-        let mut options = LoadOptions::default();
-        options.limits.max_model_bytes = 4 << 20;
-        options.limits.max_output_pixels = 256 * 256;
-        options.limits.max_parameters = 4_000_000;
-        options.limits.max_micro_batch_bytes = 16 << 20;
-        let outcome = std::panic::catch_unwind(|| -> genloom::Result<()> {
-            let model = Model::from_bytes(&bytes, &options)?;
-            let mut o = GeneratorOptions::default();
-            o.warm_up = false;
-            let g = Generator::new(model, o)?;
-            let z = g.sample_latents(&SampleOptions::new(0, 1))?;
-            let labels = g.signature().label.as_ref().map(|_| vec![0i64]);
-            g.generate(&z, labels.as_deref()).map(|_| ())
-        });
+        let outcome = as_the_fuzz_target_runs(&bytes);
         assert!(outcome.is_ok(), "{}: a panic escaped the genloom API", seed.display());
     }
 }

@@ -106,6 +106,19 @@ fn every_zoo_model_matches_pytorch_and_the_reference_evaluator_and_passes_the_ga
     eprintln!("{}", report.join("\n"));
 }
 
+/// A pattern graph's inputs, in the order its graph declares them.
+fn pattern_inputs(entry: &serde_json::Value) -> Vec<NpyArray> {
+    entry["input_decl"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|d| {
+            let input = &entry["inputs"][d["name"].as_str().unwrap()];
+            NpyArray::read(&zoo(&format!("patterns/{}", input["file"].as_str().unwrap()))).unwrap()
+        })
+        .collect()
+}
+
 #[test]
 fn passes_fire_on_the_forms_exporters_write_and_agree_with_the_reference_evaluator() {
     let manifest = json(&zoo("manifest.json"));
@@ -113,15 +126,7 @@ fn passes_fire_on_the_forms_exporters_write_and_agree_with_the_reference_evaluat
     let mut seen = vec![];
     for (name, entry) in patterns {
         let bytes = std::fs::read(root().join("tests/zoo").join(entry["file"].as_str().unwrap())).unwrap();
-        let inputs: Vec<NpyArray> = entry["input_decl"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .map(|d| {
-                let input = &entry["inputs"][d["name"].as_str().unwrap()];
-                NpyArray::read(&zoo(&format!("patterns/{}", input["file"].as_str().unwrap()))).unwrap()
-            })
-            .collect();
+        let inputs = pattern_inputs(entry);
         let want = floats(&zoo(&format!("patterns/{}", entry["output"]["file"].as_str().unwrap())));
         // Which pass must rewrite the pattern, or none for the forms left alone.
         let expected: Option<&str> = if name.starts_with("einsum-ii") {
@@ -184,15 +189,7 @@ fn the_passes_change_nothing_they_should_not() {
     for name in ["einsum-bchw_bc-to-bchw", "einsum-bij_bjk-to-bik", "einsum-oihw_bi-to-boihw"] {
         let entry = &manifest["patterns"][name];
         let bytes = std::fs::read(root().join("tests/zoo").join(entry["file"].as_str().unwrap())).unwrap();
-        let inputs: Vec<NpyArray> = entry["input_decl"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .map(|d| {
-                let input = &entry["inputs"][d["name"].as_str().unwrap()];
-                NpyArray::read(&zoo(&format!("patterns/{}", input["file"].as_str().unwrap()))).unwrap()
-            })
-            .collect();
+        let inputs = pattern_inputs(entry);
         let off = run_graph(&bytes, &inputs, &PassOptions::none()).unwrap();
         let on = run_graph(&bytes, &inputs, &PassOptions::default()).unwrap();
         let (NpyData::F32(a), NpyData::F32(b)) = (&off.outputs[0].data, &on.outputs[0].data) else {

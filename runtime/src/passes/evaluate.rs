@@ -84,20 +84,6 @@ pub(super) fn evaluate(
     if !n.domain.is_empty() && n.domain != "ai.onnx" {
         return Ok(None);
     }
-    // The node alone must meet the attribute rules before tract sees it (tract trusts them).
-    let alone = pb::GraphProto {
-        node: vec![n.clone()],
-        initializer: n
-            .input
-            .iter()
-            .zip(inputs)
-            .filter_map(|(name, t)| t.map(|t| pb::TensorProto { name: name.clone(), ..t.clone() }))
-            .collect(),
-        ..Default::default()
-    };
-    if crate::rules::check_attributes(&alone).is_err() {
-        return Ok(None);
-    }
     // A transposed convolution's output size depends on attributes tract does not check against
     // its input: left for the load's shape checks, which name the node.
     if n.op_type == "ConvTranspose" {
@@ -116,26 +102,29 @@ pub(super) fn evaluate(
     let mut initializer = vec![];
     for (name, t) in n.input.iter().zip(inputs) {
         if let Some(t) = t {
-            let mut t = (*t).clone();
-            t.name = name.clone();
-            if !initializer.iter().any(|i: &pb::TensorProto| i.name == t.name) {
-                initializer.push(t);
+            if !initializer.iter().any(|i: &pb::TensorProto| &i.name == name) {
+                initializer.push(pb::TensorProto { name: name.clone(), ..(*t).clone() });
             }
         }
     }
     let outputs: Vec<String> = n.output.iter().filter(|o| !o.is_empty()).cloned().collect();
+    let graph = pb::GraphProto {
+        node: vec![n.clone()],
+        initializer,
+        output: outputs
+            .iter()
+            .map(|o| pb::ValueInfoProto { name: o.clone(), ..Default::default() })
+            .collect(),
+        ..Default::default()
+    };
+    // It must meet the attribute rules before tract sees it (tract trusts them).
+    if crate::rules::check_attributes(&graph).is_err() {
+        return Ok(None);
+    }
     let proto = pb::ModelProto {
         ir_version: 8,
         opset_import: opsets.to_vec(),
-        graph: Some(pb::GraphProto {
-            node: vec![n.clone()],
-            initializer,
-            output: outputs
-                .iter()
-                .map(|o| pb::ValueInfoProto { name: o.clone(), ..Default::default() })
-                .collect(),
-            ..Default::default()
-        }),
+        graph: Some(graph),
         ..Default::default()
     };
     let framework = onnx::framework().with_ignore_output_shapes(true).with_ignore_value_info(true);
